@@ -1,0 +1,34 @@
+"""bandwise: pre-flight checks, sizing and node renumbering of finite-element meshes.
+
+Read a mesh, build its node connectivity graph, measure bandwidth, profile,
+wavefront and solver storage under any node numbering, and renumber it.
+
+>>> import bandwise
+>>> model = bandwise.read_model("meshes/bracket.msh")   # doctest: +SKIP
+>>> graph = bandwise.node_graph(model)                   # doctest: +SKIP
+>>> bandwise.metrics(graph).bandwidth                    # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+from importlib.metadata import PackageNotFoundError, version
+
+from .dofs import DofLayout, dof_layout
+from .errors import BandwiseError, InputError, MeshReadError, MeshWriteError
+from .graph import NodeGraph, graph_from_matrix, node_graph
+from .meshio_io import read_model, write_model
+from .metrics import Metrics, metrics
+from .model import CellBlock, Model, inverse_permutation
+from .summary import MeshSummary, summarise
+
+try:
+    __version__ = version("bandwise")
+except PackageNotFoundError:  # pragma: no cover - running from a source tree
+    __version__ = "0+unknown"
+
+__all__ = [
+    "BandwiseError", "CellBlock", "DofLayout", "InputError", "MeshReadError",
+    "MeshSummary", "MeshWriteError", "Metrics", "Model", "NodeGraph",
+    "dof_layout", "graph_from_matrix", "inverse_permutation", "metrics",
+    "node_graph", "read_model", "summarise", "write_model",
+]

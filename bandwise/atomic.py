@@ -1,0 +1,73 @@
+"""Atomic output: write into a temporary place in the target folder, then rename.
+
+An interrupted or failed write never leaves a half-written file and never
+damages an existing output: the old file stays until the new one is whole.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import shutil
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+
+from .errors import MeshWriteError
+
+
+def _target_folder(path: Path) -> Path:
+    folder = path.resolve().parent
+    if not folder.is_dir():
+        raise MeshWriteError(f"{path}: the folder {folder} does not exist")
+    return folder
+
+
+@contextlib.contextmanager
+def atomic_folder(path: str | os.PathLike[str]) -> Iterator[Path]:
+    """Yield a temporary folder; on success move every file in it beside ``path``.
+
+    The caller writes ``<tmp>/<path.name>`` (and any companion files a format
+    writes beside it, such as the HDF5 file of an XDMF mesh).  On success each
+    file is renamed into the folder of ``path``; on failure nothing is moved
+    and the temporary folder is removed.
+    """
+    path = Path(path)
+    folder = _target_folder(path)
+    try:
+        tmp = Path(tempfile.mkdtemp(prefix=f".{path.name}.", suffix=".part", dir=folder))
+    except OSError as exc:
+        raise MeshWriteError(f"{path}: cannot write in {folder}: {exc.strerror}") from None
+    try:
+        yield tmp
+        for produced in sorted(tmp.iterdir()):
+            os.replace(produced, folder / produced.name)
+    except OSError as exc:
+        raise MeshWriteError(f"{path}: write failed: {exc.strerror or exc}") from None
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+def write_text_atomic(path: str | os.PathLike[str], text: str) -> None:
+    """Write a text file atomically (temporary file in the same folder, then rename)."""
+    write_bytes_atomic(path, text.encode("utf-8"))
+
+
+def write_bytes_atomic(path: str | os.PathLike[str], data: bytes) -> None:
+    """Write a binary file atomically (temporary file in the same folder, then rename)."""
+    path = Path(path)
+    folder = _target_folder(path)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=folder)
+    except OSError as exc:
+        raise MeshWriteError(f"{path}: cannot write in {folder}: {exc.strerror}") from None
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except OSError as exc:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise MeshWriteError(f"{path}: write failed: {exc.strerror or exc}") from None

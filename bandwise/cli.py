@@ -1,0 +1,180 @@
+"""The ``bandwise`` command line: a thin layer over the library.
+
+Exit codes: 0 the job ran and found nothing at or above ``--fail-on``;
+1 it ran and found such problems; 2 it could not run (bad input, bad option).
+Every :class:`~bandwise.errors.BandwiseError` becomes one line on stderr.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sys
+from collections.abc import Callable
+from functools import wraps
+from pathlib import Path
+from typing import Annotated, Any, Optional
+
+import typer
+
+from . import __version__
+from .dofs import PHYSICS, dof_layout
+from .errors import BandwiseError
+from .meshio_io import read_model
+from .progress import StderrProgress
+from .summary import MeshSummary, summarise
+from .tables import human_bytes, human_count, render_table
+
+app = typer.Typer(
+    name="bandwise",
+    help="Pre-flight checks, sizing and node renumbering of finite-element meshes "
+         "for direct solvers.",
+    add_completion=False,
+    no_args_is_help=True,
+    pretty_exceptions_enable=False,
+)
+
+EXIT_OK, EXIT_FINDINGS, EXIT_CANNOT_RUN = 0, 1, 2
+
+CAUTION = ("Caution: these results support, and do not replace, the judgement of a "
+           "qualified engineer and the codes that apply locally.")
+
+
+def fail(message: str) -> None:
+    """Print one error line on stderr and exit with code 2."""
+    typer.echo(f"bandwise: error: {message}", err=True)
+    raise typer.Exit(EXIT_CANNOT_RUN)
+
+
+def guarded(func: Callable[..., Any]) -> Callable[..., Any]:
+    """Turn library errors (and anything unexpected) into one line and exit code 2."""
+
+    @wraps(func)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return func(*args, **kwargs)
+        except (typer.Exit, typer.Abort, SystemExit):
+            raise
+        except BandwiseError as exc:
+            fail(str(exc))
+        except KeyboardInterrupt:
+            fail("interrupted")
+        except MemoryError:
+            fail("out of memory")
+        except Exception as exc:  # never a traceback for the user
+            if os.environ.get("BANDWISE_DEBUG"):
+                raise
+            fail(f"internal error: {type(exc).__name__}: {exc} "
+                 "(set BANDWISE_DEBUG=1 for details)")
+
+    return wrapper
+
+
+def emit_json(data: dict[str, Any]) -> None:
+    """Write one JSON document on stdout."""
+    sys.stdout.write(json.dumps(data, indent=2, default=_json_default) + "\n")
+
+
+def _json_default(obj: Any) -> Any:
+    import numpy as np
+
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, np.floating):
+        return float(obj)
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
+
+
+FormatOpt = Annotated[Optional[str], typer.Option(
+    "--format", help="meshio format name of the input; overrides the extension "
+                     "(.msh is read as gmsh unless told otherwise).")]
+DofsOpt = Annotated[Optional[int], typer.Option(
+    "--dofs-per-node", min=1, max=64,
+    help="DOFs at every node; default: chosen from the element families present.")]
+PhysicsOpt = Annotated[Optional[str], typer.Option(
+    "--physics", help=f"Field being solved for: {' | '.join(PHYSICS)} "
+                      "(scalar = 1 DOF per node, e.g. heat conduction).")]
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print the results as JSON on stdout.")]
+
+
+def summary_text(s: MeshSummary) -> str:
+    """The human-readable summary table of ``bandwise check``."""
+    elements = ", ".join(f"{c} {t}" for t, c in s.cells_by_type.items())
+    facts = [
+        ("file", f"{s.source} ({s.file_format})"),
+        ("nodes", f"{s.n_nodes:,}"),
+        ("elements", f"{sum(s.cells_by_type.values()):,} ({elements})"),
+        ("dimension", f"{s.dimension}D cells"),
+        ("DOF rule", s.dof_rule),
+        ("DOFs", f"{s.n_dofs:,}"),
+        ("connected parts", f"{s.n_parts}"),
+        ("orphan nodes", f"{s.n_orphans}"),
+    ]
+    if s.skipped:
+        facts.append(("skipped blocks", "; ".join(s.skipped)))
+    n, d = s.node_level, s.dof_level
+    rows = [
+        ("matrix order", f"{n.n_rows:,}", f"{d.n_rows:,}", "rows"),
+        ("bandwidth", f"{n.bandwidth:,}", f"{d.bandwidth:,}", "semi-bandwidth, diagonal excluded"),
+        ("profile", f"{n.profile:,}", f"{d.profile:,}", "entries below the diagonal in the envelope"),
+        ("max wavefront", f"{n.max_wavefront:,}", f"{d.max_wavefront:,}", "rows"),
+        ("RMS wavefront", f"{n.rms_wavefront:,.1f}", f"{d.rms_wavefront:,.1f}", "rows"),
+        ("banded storage", human_bytes(n.banded_bytes), human_bytes(d.banded_bytes),
+         "n(b+1) doubles"),
+        ("skyline storage", human_bytes(n.skyline_bytes), human_bytes(d.skyline_bytes),
+         "P+n doubles, n+1 int64 pointers"),
+        ("envelope Cholesky", human_count(n.envelope_ops), human_count(d.envelope_ops),
+         "multiplications"),
+    ]
+    return "\n".join([
+        render_table(facts, align="ll"),
+        "",
+        "Current numbering",
+        render_table(rows, header=("figure", "node level", "DOF level", "unit / convention"),
+                     align="lrrl"),
+    ])
+
+
+@app.command()
+@guarded
+def check(
+    files: Annotated[list[Path], typer.Argument(help="Mesh files to check (read-only).")],
+    file_format: FormatOpt = None,
+    dofs_per_node: DofsOpt = None,
+    physics: PhysicsOpt = None,
+    as_json: JsonOpt = False,
+) -> None:
+    """Size up a mesh before a run: parts, orphans, DOFs, bandwidth, profile, wavefront, memory."""
+    progress = StderrProgress()
+    results = []
+    for path in files:
+        model = read_model(path, file_format)
+        layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
+        results.append(summarise(model, layout, progress=progress))
+    if as_json:
+        docs = [r.to_dict() for r in results]
+        emit_json({"bandwise_version": __version__, "caution": CAUTION,
+                   "meshes": docs})
+        return
+    for k, s in enumerate(results):
+        if k:
+            typer.echo("")
+        typer.echo(summary_text(s))
+    typer.echo("")
+    typer.echo(CAUTION)
+
+
+@app.callback(invoke_without_command=True)
+def _root(
+    version: Annotated[bool, typer.Option("--version", help="Print the version and exit.")] = False,
+) -> None:
+    if version:
+        typer.echo(f"bandwise {__version__}")
+        raise typer.Exit(0)
+
+
+def main() -> None:
+    """Entry point of the ``bandwise`` console script and ``python -m bandwise``."""
+    app()

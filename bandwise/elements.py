@@ -1,0 +1,42 @@
+"""Element families: which meshio cell types are solids, plates, lines.
+
+The topological dimension of a cell type decides which degrees of freedom
+its nodes carry (see :mod:`bandwise.dofs`) and which checks apply to it.
+"""
+
+from __future__ import annotations
+
+#: Topological dimension of every cell type bandwise analyses (meshio names).
+CELL_DIMENSION: dict[str, int] = {
+    "vertex": 0,
+    "line": 1, "line3": 1, "line4": 1,
+    "triangle": 2, "triangle6": 2, "triangle7": 2, "triangle10": 2,
+    "quad": 2, "quad8": 2, "quad9": 2, "polygon": 2,
+    "tetra": 3, "tetra10": 3, "tetra14": 3,
+    "hexahedron": 3, "hexahedron20": 3, "hexahedron24": 3, "hexahedron27": 3,
+    "wedge": 3, "wedge12": 3, "wedge15": 3, "wedge18": 3,
+    "pyramid": 3, "pyramid13": 3, "pyramid14": 3,
+}
+
+#: Number of corner (vertex) nodes of each cell type; the corners come first
+#: in the VTK / meshio node ordering of higher-order cells.
+CORNER_COUNT: dict[str, int] = {
+    "vertex": 1,
+    "line": 2, "line3": 2, "line4": 2,
+    "triangle": 3, "triangle6": 3, "triangle7": 3, "triangle10": 3,
+    "quad": 4, "quad8": 4, "quad9": 4,
+    "tetra": 4, "tetra10": 4, "tetra14": 4,
+    "hexahedron": 8, "hexahedron20": 8, "hexahedron24": 8, "hexahedron27": 8,
+    "wedge": 6, "wedge12": 6, "wedge15": 6, "wedge18": 6,
+    "pyramid": 5, "pyramid13": 5, "pyramid14": 5,
+}
+
+
+def cell_dimension(cell_type: str) -> int | None:
+    """Topological dimension of a meshio cell type, or None if not analysed."""
+    return CELL_DIMENSION.get(cell_type)
+
+
+def is_analysed(cell_type: str) -> bool:
+    """True when bandwise knows the cell type (polyhedra and others are skipped)."""
+    return cell_type in CELL_DIMENSION

@@ -1,0 +1,281 @@
+"""The one adapter between meshio and bandwise's :class:`~bandwise.model.Model`.
+
+Reading guards against meshio's traps: ``.msh`` is read as gmsh unless told
+otherwise (meshio would try the ANSYS reader first and print its failure);
+meshio prints and calls ``sys.exit`` when no reader succeeds, so its stdout is
+captured and ``SystemExit`` caught; readers raise many exception types on
+malformed files, each turned into one :class:`MeshReadError` line.  Writing
+builds a fresh ``meshio.Mesh`` from copies (the VTU/VTK writers empty the
+point sets of the mesh they are given) into a temporary folder, then renames.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import logging
+import os
+import warnings
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .atomic import atomic_folder
+from .elements import is_analysed
+from .errors import InputError, MeshReadError, MeshWriteError
+from .model import CellBlock, Model
+
+#: Extensions read by meshio, with bandwise's choice where meshio's is ambiguous.
+_COMPOUND = (".vol.gz", ".post.gz", ".dato.gz")
+
+
+def _meshio():
+    import meshio  # imported lazily: meshio's import costs about 0.3 s
+
+    return meshio
+
+
+def known_formats() -> list[str]:
+    """Names of the mesh formats meshio can read (for ``--format``)."""
+    from meshio._helpers import reader_map
+
+    return sorted(reader_map)
+
+
+def detect_format(path: str | os.PathLike[str]) -> str:
+    """The meshio format name for a path, from its extension.
+
+    ``.msh`` means gmsh (meshio also lists ANSYS for it); pass ``--format
+    ansys`` for a Fluent/ANSYS ``.msh`` file.
+
+    Raises
+    ------
+    MeshReadError
+        If the extension is not one meshio reads.
+    """
+    from meshio._helpers import extension_to_filetypes
+
+    name = Path(path).name.lower()
+    ext = next((c for c in _COMPOUND if name.endswith(c)), Path(name).suffix)
+    if ext == ".msh":
+        return "gmsh"
+    types = extension_to_filetypes.get(ext)
+    if not types:
+        shown = ext or "(none)"
+        raise MeshReadError(
+            f"{path}: unknown file extension {shown}; name the format with --format "
+            f"(one of: {', '.join(known_formats())})"
+        )
+    return types[0]
+
+
+def _one_line(exc: BaseException) -> str:
+    text = " ".join(str(exc).split())
+    name = type(exc).__name__
+    if not text or isinstance(exc, SystemExit):
+        return f"the file is malformed ({name})" if not isinstance(exc, SystemExit) \
+            else "the file is malformed or not of this format"
+    if len(text) > 160:
+        text = text[:157] + "..."
+    return f"{text} ({name})" if name not in ("ReadError",) else text
+
+
+def _gmsh_version(path: Path) -> str | None:
+    """'2.2' or '4.1' read from a gmsh file header, else None."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(64).split()
+    except OSError:
+        return None
+    if len(head) >= 2 and head[0] == b"$MeshFormat":
+        return head[1].decode("ascii", "replace")
+    return None
+
+
+def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> Model:
+    """Read a mesh file into a :class:`Model`.
+
+    Parameters
+    ----------
+    path
+        Any file meshio reads.  The file is opened read-only.
+    file_format
+        A meshio format name; overrides detection from the extension.
+
+    Raises
+    ------
+    MeshReadError
+        Missing or unreadable file, unknown extension, malformed content, an
+        empty mesh, cells that refer to missing nodes, non-finite coordinates.
+    """
+    path = Path(path)
+    if not path.exists():
+        raise MeshReadError(f"{path}: no such file")
+    if path.is_dir():
+        raise MeshReadError(f"{path}: is a folder, not a mesh file")
+    if not os.access(path, os.R_OK):
+        raise MeshReadError(f"{path}: permission denied")
+    if file_format is not None and file_format not in known_formats():
+        raise InputError(f"unknown format {file_format!r}; one of: {', '.join(known_formats())}")
+    fmt = file_format or detect_format(path)
+    if path.stat().st_size == 0:
+        raise MeshReadError(f"{path}: the file is empty")
+    meshio = _meshio()
+    captured = io.StringIO()
+    try:
+        with contextlib.redirect_stdout(captured), contextlib.redirect_stderr(captured), \
+                warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            logging.disable(logging.CRITICAL)
+            try:
+                mesh = meshio.read(path, file_format=fmt)
+            finally:
+                logging.disable(logging.NOTSET)
+    except (SystemExit, KeyboardInterrupt) as exc:
+        if isinstance(exc, KeyboardInterrupt):
+            raise
+        raise MeshReadError(f"{path}: cannot read as {fmt}: {_one_line(exc)}") from None
+    except MemoryError:
+        raise MeshReadError(f"{path}: not enough memory to read the file") from None
+    except Exception as exc:  # meshio readers raise arbitrary types on malformed files
+        raise MeshReadError(f"{path}: cannot read as {fmt}: {_one_line(exc)}") from None
+    model = model_from_meshio(mesh, source=str(path), file_format=fmt)
+    if fmt == "gmsh" and _gmsh_version(path) == "2.2":
+        model.file_format = "gmsh22"
+    validate_model(model)
+    return model
+
+
+def model_from_meshio(mesh: Any, source: str = "", file_format: str = "") -> Model:
+    """Turn a ``meshio.Mesh`` into a :class:`Model` (arrays copied, indices int64)."""
+    points = np.array(mesh.points, dtype=np.float64)
+    if points.ndim != 2:
+        raise MeshReadError(f"{source}: node coordinates are not a table (shape {points.shape})")
+    blocks = []
+    for block in mesh.cells:
+        data = block.data
+        if isinstance(data, np.ndarray) and data.ndim == 2:
+            arr = np.asarray(data)
+            if not np.issubdtype(arr.dtype, np.integer):
+                if not np.all(np.isfinite(arr)) or np.any(arr != np.round(arr)):
+                    raise MeshReadError(f"{source}: {block.type} connectivity is not integer")
+            blocks.append(CellBlock(block.type, arr.astype(np.int64)))
+        else:  # ragged (polyhedron ...): kept to be written back, not analysed
+            ragged = np.empty(len(data), dtype=object)
+            ragged[:] = [np.asarray(c, dtype=np.int64) for c in data]
+            blocks.append(CellBlock(block.type, ragged))
+    cell_sets = {
+        name: [np.asarray(a if a is not None else [], dtype=np.int64).ravel() for a in arrays]
+        for name, arrays in (mesh.cell_sets or {}).items()
+    }
+    return Model(
+        points=points,
+        cells=blocks,
+        point_data={k: np.array(v) for k, v in (mesh.point_data or {}).items()},
+        cell_data={k: [np.array(a) for a in v] for k, v in (mesh.cell_data or {}).items()},
+        point_sets={k: np.asarray(v, dtype=np.int64).ravel()
+                    for k, v in (mesh.point_sets or {}).items()},
+        cell_sets=cell_sets,
+        field_data=dict(mesh.field_data or {}),
+        periodic=getattr(mesh, "gmsh_periodic", None),
+        info=getattr(mesh, "info", None),
+        source=source,
+        file_format=file_format,
+    )
+
+
+def validate_model(model: Model) -> None:
+    """Raise :class:`MeshReadError` for a mesh no analysis can start from."""
+    src = model.source or "mesh"
+    n = model.n_nodes
+    if n == 0:
+        raise MeshReadError(f"{src}: the mesh has no nodes")
+    if model.points.shape[1] not in (1, 2, 3):
+        raise MeshReadError(f"{src}: nodes have {model.points.shape[1]} coordinates")
+    bad = ~np.isfinite(model.points).all(axis=1)
+    if bad.any():
+        first = int(np.flatnonzero(bad)[0]) + 1
+        raise MeshReadError(
+            f"{src}: {int(bad.sum())} node(s) have non-finite coordinates (first: node at position {first})"
+        )
+    if model.n_cells == 0:
+        raise MeshReadError(f"{src}: the mesh has {n} nodes but no elements")
+    for k, block in enumerate(model.cells):
+        if len(block) == 0:
+            continue
+        data = block.data
+        if data.dtype == object:
+            flat = np.concatenate(list(data)) if len(data) else np.zeros(0, np.int64)
+        else:
+            flat = data
+        if flat.size and (flat.min() < 0 or flat.max() >= n):
+            wrong = int(flat.max()) if flat.max() >= n else int(flat.min())
+            raise MeshReadError(
+                f"{src}: cell block {k + 1} ({block.type}) refers to node index {wrong}, "
+                f"but the mesh has {n} nodes"
+            )
+    for name, idx in model.point_sets.items():
+        if idx.size and (idx.min() < 0 or idx.max() >= n):
+            raise MeshReadError(f"{src}: node set {name!r} refers to a node that does not exist")
+
+
+def skipped_blocks(model: Model) -> list[str]:
+    """Cell blocks bandwise does not analyse (listed to the user, never dropped)."""
+    return [f"{b.type} ({len(b)} cells)" for b in model.cells if not is_analysed(b.type)]
+
+
+def to_meshio(model: Model) -> Any:
+    """A fresh ``meshio.Mesh`` built from copies of the model's arrays."""
+    meshio = _meshio()
+    cells = []
+    for b in model.cells:
+        if b.data.dtype == object:
+            cells.append(meshio.CellBlock(b.type, [np.array(c) for c in b.data]))
+        else:
+            cells.append(meshio.CellBlock(b.type, np.array(b.data)))
+    return meshio.Mesh(
+        np.array(model.points),
+        cells,
+        point_data={k: np.array(v) for k, v in model.point_data.items()},
+        cell_data={k: [np.array(a) for a in v] for k, v in model.cell_data.items()},
+        field_data=dict(model.field_data),
+        point_sets={k: np.array(v) for k, v in model.point_sets.items()},
+        cell_sets={k: [np.array(a) for a in v] for k, v in model.cell_sets.items()},
+        gmsh_periodic=model.periodic,
+        info=model.info,
+    )
+
+
+def write_model(model: Model, path: str | os.PathLike[str], file_format: str | None = None) -> str:
+    """Write a model atomically; returns the meshio format name used.
+
+    The format is ``file_format`` if given, else the one the extension
+    implies; a gmsh 2.2 source written to ``.msh`` stays gmsh 2.2.
+
+    Raises
+    ------
+    MeshWriteError
+        The folder is missing or not writable, or the format cannot hold the mesh.
+    """
+    path = Path(path)
+    if file_format is None:
+        try:
+            file_format = detect_format(path)
+        except MeshReadError as exc:
+            raise MeshWriteError(str(exc)) from None
+        if file_format == "gmsh" and model.file_format == "gmsh22":
+            file_format = "gmsh22"
+    mesh = to_meshio(model)
+    meshio = _meshio()
+    with atomic_folder(path) as tmp:
+        try:
+            with contextlib.redirect_stdout(io.StringIO()), \
+                    contextlib.redirect_stderr(io.StringIO()), warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                meshio.write(tmp / path.name, mesh, file_format=file_format)
+        except MeshWriteError:
+            raise
+        except Exception as exc:  # meshio writers raise arbitrary types
+            raise MeshWriteError(f"{path}: cannot write as {file_format}: {_one_line(exc)}") from None
+    return file_format
