@@ -1,0 +1,83 @@
+"""``bandwise check``: size up and check meshes before a run."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from .. import __version__
+from ..dofs import dof_layout
+from ..meshio_io import read_model
+from ..progress import StderrProgress
+from ..summary import MeshSummary, summarise
+from ..tables import human_bytes, human_count, render_table
+from . import CAUTION, DofsOpt, FormatOpt, JsonOpt, PhysicsOpt, app, emit_json, guarded
+
+
+def summary_text(s: MeshSummary) -> str:
+    """The human-readable summary table of ``bandwise check``."""
+    elements = ", ".join(f"{c} {t}" for t, c in s.cells_by_type.items())
+    facts = [
+        ("file", f"{s.source} ({s.file_format})"),
+        ("nodes", f"{s.n_nodes:,}"),
+        ("elements", f"{sum(s.cells_by_type.values()):,} ({elements})"),
+        ("dimension", f"{s.dimension}D cells"),
+        ("DOF rule", s.dof_rule),
+        ("DOFs", f"{s.n_dofs:,}"),
+        ("connected parts", f"{s.n_parts}"),
+        ("orphan nodes", f"{s.n_orphans}"),
+    ]
+    if s.skipped:
+        facts.append(("skipped blocks", "; ".join(s.skipped)))
+    n, d = s.node_level, s.dof_level
+    rows = [
+        ("matrix order", f"{n.n_rows:,}", f"{d.n_rows:,}", "rows"),
+        ("bandwidth", f"{n.bandwidth:,}", f"{d.bandwidth:,}", "semi-bandwidth, diagonal excluded"),
+        ("profile", f"{n.profile:,}", f"{d.profile:,}", "entries below the diagonal in the envelope"),
+        ("max wavefront", f"{n.max_wavefront:,}", f"{d.max_wavefront:,}", "rows"),
+        ("RMS wavefront", f"{n.rms_wavefront:,.1f}", f"{d.rms_wavefront:,.1f}", "rows"),
+        ("banded storage", human_bytes(n.banded_bytes), human_bytes(d.banded_bytes),
+         "n(b+1) doubles"),
+        ("skyline storage", human_bytes(n.skyline_bytes), human_bytes(d.skyline_bytes),
+         "P+n doubles, n+1 int64 pointers"),
+        ("envelope Cholesky", human_count(n.envelope_ops), human_count(d.envelope_ops),
+         "multiplications"),
+    ]
+    return "\n".join([
+        render_table(facts, align="ll"),
+        "",
+        "Current numbering",
+        render_table(rows, header=("figure", "node level", "DOF level", "unit / convention"),
+                     align="lrrl"),
+    ])
+
+
+@app.command()
+@guarded
+def check(
+    files: Annotated[list[Path], typer.Argument(help="Mesh files to check (read-only).")],
+    file_format: FormatOpt = None,
+    dofs_per_node: DofsOpt = None,
+    physics: PhysicsOpt = None,
+    as_json: JsonOpt = False,
+) -> None:
+    """Size up a mesh before a run: parts, orphans, DOFs, bandwidth, profile, wavefront, memory."""
+    progress = StderrProgress()
+    results = []
+    for path in files:
+        model = read_model(path, file_format)
+        layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
+        results.append(summarise(model, layout, progress=progress))
+    if as_json:
+        docs = [r.to_dict() for r in results]
+        emit_json({"bandwise_version": __version__, "caution": CAUTION,
+                   "meshes": docs})
+        return
+    for k, s in enumerate(results):
+        if k:
+            typer.echo("")
+        typer.echo(summary_text(s))
+    typer.echo("")
+    typer.echo(CAUTION)
