@@ -103,8 +103,19 @@ def _root(
         raise typer.Exit(0)
 
 
+#: Command modules; each registers its command on :data:`app` when imported.
+COMMAND_MODULES = ("check_cmd",)
+
+
+def load_commands() -> None:
+    """Import every command module so that each registers itself on ``app``."""
+    import importlib
+
+    for name in COMMAND_MODULES:
+        importlib.import_module(f"{__name__}.{name}")
+
+
 def main() -> None:
     """Entry point of the ``bandwise`` console script and ``python -m bandwise``."""
-    from . import check_cmd  # noqa: F401  (each module registers its command)
-
+    load_commands()
     app()

@@ -1,0 +1,56 @@
+"""Shared fixtures: where the reference data live, tiny meshes, a CLI runner.
+
+The open reference data (test matrices, real mesh files) are read in place
+from ``../shared/`` beside the repository.  A clone used elsewhere has no
+such folder: those tests skip with a reason, except under CI (``CI=true``),
+where a missing folder is a failure.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import pytest
+from hypothesis import HealthCheck, settings
+
+ROOT = Path(__file__).resolve().parent.parent
+SHARED = ROOT.parent / "shared"
+MESHES = ROOT / "meshes"
+
+settings.register_profile(
+    "bandwise", derandomize=True, deadline=None, max_examples=40,
+    suppress_health_check=[HealthCheck.too_slow],
+)
+settings.load_profile("bandwise")
+
+
+def shared_path(*parts: str) -> Path:
+    """A path under ``../shared``; skip (or fail under CI) when it is missing."""
+    path = SHARED.joinpath(*parts)
+    if not path.exists():
+        reason = f"reference data not found: {path} (the shared data folder beside the clone)"
+        if os.environ.get("CI", "").lower() == "true":
+            pytest.fail(reason)
+        pytest.skip(reason)
+    return path
+
+
+@pytest.fixture
+def runner():
+    """A typer CLI runner that keeps stdout and stderr apart."""
+    from typer.testing import CliRunner
+
+    try:
+        return CliRunner(mix_stderr=False)
+    except TypeError:  # newer click keeps them apart by default
+        return CliRunner()
+
+
+@pytest.fixture
+def cli_app():
+    """The bandwise typer app with every command registered."""
+    from bandwise.cli import app, load_commands
+
+    load_commands()
+    return app
