@@ -247,6 +247,27 @@ def to_meshio(model: Model) -> Any:
     )
 
 
+def gmsh_dim_tags(model: Model) -> np.ndarray:
+    """Entity (dimension, tag) of every node, which meshio's gmsh 4.1 writer needs.
+
+    As gmsh classifies nodes, each node is given to the lowest-dimensional
+    cell containing it, with that cell's ``gmsh:geometrical`` tag (1 when the
+    model has none), so that every entity an element block names exists.
+    """
+    dim_tags = np.zeros((model.n_nodes, 2), dtype=np.int64)
+    dim_tags[:, 1] = 1
+    geometrical = model.cell_data.get("gmsh:geometrical")
+    for k, block in sorted(enumerate(model.cells), key=lambda kb: -(kb[1].dimension or 0)):
+        if block.data.dtype == object or not len(block):
+            continue
+        dim = block.dimension or 0
+        tags = geometrical[k] if geometrical is not None else np.ones(len(block), np.int64)
+        nodes = block.data.ravel()
+        dim_tags[nodes, 0] = dim
+        dim_tags[nodes, 1] = np.repeat(np.asarray(tags, dtype=np.int64), block.data.shape[1])
+    return dim_tags
+
+
 def write_model(model: Model, path: str | os.PathLike[str], file_format: str | None = None) -> str:
     """Write a model atomically; returns the meshio format name used.
 
@@ -267,6 +288,9 @@ def write_model(model: Model, path: str | os.PathLike[str], file_format: str | N
         if file_format == "gmsh" and model.file_format == "gmsh22":
             file_format = "gmsh22"
     mesh = to_meshio(model)
+    if file_format == "gmsh" and "gmsh:dim_tags" not in mesh.point_data \
+            and len({b.type for b in model.cells}) > 1:
+        mesh.point_data["gmsh:dim_tags"] = gmsh_dim_tags(model)
     meshio = _meshio()
     with atomic_folder(path) as tmp:
         try:

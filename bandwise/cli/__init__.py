@@ -54,6 +54,9 @@ def guarded(func: Callable[..., Any]) -> Callable[..., Any]:
             fail(str(exc))
         except KeyboardInterrupt:
             fail("interrupted")
+        except BrokenPipeError:  # output piped into a command that stopped reading
+            sys.stderr.close()
+            raise typer.Exit(EXIT_OK) from None
         except MemoryError:
             fail("out of memory")
         except Exception as exc:  # never a traceback for the user
