@@ -17,6 +17,7 @@ from typing import Annotated, Any, Optional
 import typer
 
 from .. import __version__
+from ..caution import CAUTION
 from ..dofs import PHYSICS
 from ..errors import BandwiseError
 
@@ -30,9 +31,6 @@ app = typer.Typer(
 )
 
 EXIT_OK, EXIT_FINDINGS, EXIT_CANNOT_RUN = 0, 1, 2
-
-CAUTION = ("Caution: these results support, and do not replace, the judgement of a "
-           "qualified engineer and the codes that apply locally.")
 
 
 def fail(message: str) -> None:
