@@ -149,7 +149,7 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
 
 def model_from_meshio(mesh: Any, source: str = "", file_format: str = "") -> Model:
     """Turn a ``meshio.Mesh`` into a :class:`Model` (arrays copied, indices int64)."""
-    points = np.array(mesh.points, dtype=np.float64)
+    points = np.asarray(mesh.points, dtype=np.float64)  # meshio's arrays are ours now: no copy
     if points.ndim != 2:
         raise MeshReadError(f"{source}: node coordinates are not a table (shape {points.shape})")
     blocks = []
@@ -160,7 +160,7 @@ def model_from_meshio(mesh: Any, source: str = "", file_format: str = "") -> Mod
             if not np.issubdtype(arr.dtype, np.integer):
                 if not np.all(np.isfinite(arr)) or np.any(arr != np.round(arr)):
                     raise MeshReadError(f"{source}: {block.type} connectivity is not integer")
-            blocks.append(CellBlock(block.type, arr.astype(np.int64)))
+            blocks.append(CellBlock(block.type, arr.astype(np.int64, copy=False)))
         else:  # ragged (polyhedron ...): kept to be written back, not analysed
             ragged = np.empty(len(data), dtype=object)
             ragged[:] = [np.asarray(c, dtype=np.int64) for c in data]
