@@ -1,0 +1,289 @@
+"""Write a report folder: ``report.html``, ``report.json`` and the figures as PNG.
+
+Everything is written into a temporary folder beside the target and moved
+into place only when whole: a new folder is renamed in one step; into an
+existing folder each file is renamed over its old version, the page last.
+A failure at any point leaves no partial page and no stray file behind.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import shutil
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..errors import MeshWriteError
+from ..metrics import column_heights, wavefront_profile
+from ..model import Model
+from ..progress import Progress, step
+from . import figures as fg
+from .document import free_mode_count, report_document
+from .html import json_text, render_html
+from .inputs import ReportInputs
+from .meshview import mesh_view
+from .sampling import pattern_image
+
+HTML_NAME, JSON_NAME = "report.html", "report.json"
+
+
+@dataclass(frozen=True)
+class ReportFiles:
+    """Where a report was written.
+
+    Attributes
+    ----------
+    folder
+        The report folder.
+    html, json
+        The page and the machine-readable document.
+    figures
+        The PNG files (the same images are embedded in the page).
+    """
+
+    folder: Path
+    html: Path
+    json: Path
+    figures: tuple[Path, ...]
+
+
+@dataclass(frozen=True)
+class Figure:
+    """One rendered figure: its file name, section, caption and PNG bytes."""
+
+    file: str
+    section: str
+    caption: str
+    png: bytes
+
+    def entry(self) -> dict[str, str]:
+        """The figure as listed in the report document."""
+        return {"file": self.file, "section": self.section, "caption": self.caption}
+
+
+def node_indices(model: Model, labels: Any) -> NDArray[np.int64]:
+    """0-based indices of the nodes a finding names by label (unknown labels dropped)."""
+    ids = np.asarray(list(labels), dtype=np.int64)
+    all_labels, _ = model.node_labels()
+    if ids.size == 0 or all_labels.size == 0:
+        return np.zeros(0, dtype=np.int64)
+    order = np.argsort(all_labels, kind="stable")
+    at = np.clip(np.searchsorted(all_labels[order], ids), 0, order.size - 1)
+    found = all_labels[order[at]] == ids
+    return order[at[found]].astype(np.int64)
+
+
+def mark_kind(code: str) -> str:
+    """The kind of mark drawn for the nodes of a finding, from its code."""
+    code = code.lower()
+    for word, kind in (("orphan", "orphan"), ("coincid", "coincident"),
+                       ("joint", "weak joint"), ("hinge", "weak joint"),
+                       ("weak", "weak joint")):
+        if word in code:
+            return kind
+    return "other"
+
+
+def finding_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
+    """Nodes to mark on the mesh picture, per kind, from the findings' node ids."""
+    marks: dict[str, list[NDArray[np.int64]]] = {}
+    for f in inputs.findings or ():
+        ids = getattr(f, "node_ids", ())
+        if ids:
+            marks.setdefault(mark_kind(getattr(f, "code", "")), []).append(
+                node_indices(inputs.model, ids))
+    return {k: np.unique(np.concatenate(v)) for k, v in marks.items()}
+
+
+def mode_arrows(inputs: ReportInputs) -> tuple[NDArray[np.int64], NDArray[np.float64]] | None:
+    """Nodes and 3-component vectors of the first free mode, if the modes carry them."""
+    modes = inputs.modes
+    if modes is None or not free_mode_count(modes):
+        return None
+    arrows = getattr(modes, "arrows", None)
+    if callable(arrows):
+        nodes, vectors = arrows()
+        return np.asarray(nodes, dtype=np.int64), np.asarray(vectors, dtype=np.float64)
+    return None
+
+
+def mesh_figure(inputs: ReportInputs) -> Figure:
+    """The mesh coloured by part, findings marked, a free mode drawn as arrows."""
+    view = mesh_view(inputs.model, inputs.graph)
+    ax = fg.mesh_axes(view, finding_marks(inputs), mode_arrows(inputs))
+    shown = (f"{len(view.facets):,} of {view.facets_total:,} facets drawn (evenly spread "
+             "subset)" if view.is_subsampled else "every facet drawn")
+    caption = (f"The mesh, {view.n_parts} connected part(s) coloured; marked nodes from the "
+               f"findings; {shown}.")
+    if view.axis_names[0].startswith("view"):
+        caption += " Oblique view; outer faces of solids only."
+    return Figure("mesh.png", "findings", caption, fg.png_bytes(ax))
+
+
+def pattern_figure(inputs: ReportInputs) -> Figure:
+    """The sparsity pattern before (and after) renumbering, side by side, one scale."""
+    from matplotlib.figure import Figure as MplFigure
+
+    from .style import styled
+
+    before = pattern_image(inputs.graph)
+    after = None if inputs.perm is None else pattern_image(inputs.graph, inputs.perm)
+    vmax = max(int(before.counts.max()), int(after.counts.max()) if after else 1)
+
+    @styled
+    def draw() -> Any:
+        fig = MplFigure(figsize=(11.0 if after else 6.0, 5.2), layout="constrained")
+        axes = fig.subplots(1, 2 if after else 1, squeeze=False)[0]
+        fg.pattern_axes(before, "Current numbering", ax=axes[0], vmax=vmax)
+        if after is not None:
+            fg.pattern_axes(after, f"Renumbered ({inputs.method or 'given ordering'})",
+                            ax=axes[1], vmax=vmax)
+        return fig
+
+    exact = before.bins == before.n
+    caption = (f"Node-level nonzero pattern, diagonal included ({before.nnz:,} entries); "
+               + ("one cell per entry." if exact else
+                  f"binned {before.bins} x {before.bins}, darker = more nonzeros (log "
+                  "scale, same scale on both sides)."))
+    return Figure("pattern.png", "sizing", caption, fg.png_bytes(draw()))
+
+
+def curve_figures(inputs: ReportInputs) -> list[Figure]:
+    """Skyline column heights and wavefront along the elimination, before and after."""
+    g, p, d = inputs.graph, inputs.perm, inputs.layout
+    label = ("current numbering", f"renumbered ({inputs.method or 'given ordering'})")
+    sky = fg.skyline_axes(column_heights(g, None, d),
+                          None if p is None else column_heights(g, p, d), labels=label)
+    wave = fg.wavefront_axes(wavefront_profile(g, None, d),
+                             None if p is None else wavefront_profile(g, p, d), labels=label)
+    note = " Long curves drawn as their min-max band per bin (no peak lost)."
+    return [
+        Figure("skyline.png", "sizing", "Skyline: column height of every DOF row; the "
+               "filled area is the profile (envelope) a skyline solver stores." + note,
+               fg.png_bytes(sky)),
+        Figure("wavefront.png", "sizing", "Wavefront: equations active at each "
+               "elimination step (DOF level)." + note, fg.png_bytes(wave)),
+    ]
+
+
+def comparison_figure(inputs: ReportInputs) -> Figure | None:
+    """Bar chart of the orderings compared, relative to the current numbering."""
+    comp = inputs.comparison
+    rows = getattr(comp, "rows", None)
+    if comp is None or not rows:
+        return None
+    current = inputs.summary.dof_level.to_dict()
+    methods, ratios = [], {}
+    names = ("bandwidth", "profile", "max_wavefront", "rms_wavefront")
+    for row in rows:
+        data = row.to_dict() if hasattr(row, "to_dict") else dict(row)
+        figs = data.get("dofs", data) if isinstance(data.get("dofs"), dict) else data
+        methods.append(str(data.get("method", data.get("name", "?"))))
+        for key in names:
+            base = current.get(key) or 0
+            value = figs.get(key)
+            ratios.setdefault(key.replace("_", " "), []).append(
+                float(value) / base if base and isinstance(value, (int, float)) else np.nan)
+    best = getattr(comp, "best", None)
+    best = getattr(best, "method", best)
+    ax = fg.comparison_axes(methods, ratios, chosen=None if best is None else str(best))
+    return Figure("orderings.png", "orderings", "Each ordering's figures divided by those "
+                  "of the current numbering (DOF level; below 1 is better); the kept "
+                  "ordering outlined.", fg.png_bytes(ax))
+
+
+def report_figures(inputs: ReportInputs, progress: Progress | None = None) -> list[Figure]:
+    """Render every figure the inputs allow."""
+    out = []
+    with step(progress, "drawing the mesh"):
+        out.append(mesh_figure(inputs))
+    with step(progress, "drawing the matrix pattern and curves"):
+        out.append(pattern_figure(inputs))
+        out.extend(curve_figures(inputs))
+        cmp = comparison_figure(inputs)
+        if cmp is not None:
+            out.append(cmp)
+    return out
+
+
+def _report_folder(out_dir: Path) -> Path:
+    """Check that the report folder can be written: its parent exists, it is no file."""
+    parent = out_dir.resolve().parent
+    if out_dir.exists() and not out_dir.is_dir():
+        raise MeshWriteError(f"{out_dir}: exists and is not a folder")
+    if not parent.is_dir():
+        raise MeshWriteError(f"{out_dir}: cannot create the report folder: "
+                             f"{parent} does not exist")
+    return parent
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _publish(tmp: Path, out_dir: Path, names: list[str]) -> None:
+    """Move the finished files into place: the folder at once, or file by file, page last."""
+    if not out_dir.exists():
+        with contextlib.suppress(OSError):
+            os.replace(tmp, out_dir)
+            return
+    out_dir.mkdir(exist_ok=True)
+    for name in names:  # figures, then the JSON, then the page
+        os.replace(tmp / name, out_dir / name)
+
+
+def write_report(out_dir: str | os.PathLike[str], inputs: ReportInputs,
+                 progress: Progress | None = None) -> ReportFiles:
+    """Write ``report.html``, ``report.json`` and the PNG figures into ``out_dir``.
+
+    Parameters
+    ----------
+    out_dir
+        The report folder; created if missing (its parent must exist), else
+        its report files are replaced.
+    inputs
+        What the report presents.
+    progress
+        Receives the steps (the library never prints).
+
+    Returns
+    -------
+    ReportFiles
+
+    Raises
+    ------
+    MeshWriteError
+        The folder cannot be created or written; nothing is left behind.
+    """
+    out = Path(out_dir)
+    parent = _report_folder(out)
+    try:
+        tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".part", dir=parent))
+        tmp.chmod(0o777 & ~_umask())  # mkdtemp makes it private; the folder is published
+    except OSError as exc:
+        raise MeshWriteError(f"{out}: cannot write in {parent}: {exc.strerror}") from None
+    try:
+        figs = report_figures(inputs, progress)
+        with step(progress, "writing the report"):
+            doc = report_document(inputs, [f.entry() for f in figs])
+            page = render_html(doc, {f.file: f.png for f in figs})
+            for f in figs:
+                (tmp / f.file).write_bytes(f.png)
+            (tmp / JSON_NAME).write_text(json_text(doc), encoding="utf-8")
+            (tmp / HTML_NAME).write_text(page, encoding="utf-8")
+            names = [f.file for f in figs] + [JSON_NAME, HTML_NAME]
+            _publish(tmp, out, names)
+    except OSError as exc:
+        raise MeshWriteError(f"{out}: report not written: {exc.strerror or exc}") from None
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+    return ReportFiles(out, out / HTML_NAME, out / JSON_NAME,
+                       tuple(out / f.file for f in figs))

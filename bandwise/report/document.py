@@ -1,0 +1,159 @@
+"""The report as data: one JSON-ready document that the HTML page is rendered from.
+
+Every figure the HTML tables show comes from this document, and
+``report.json`` is this document, so a pipeline reads the same numbers an
+engineer reads on the page.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .. import __version__
+from ..caution import CAUTION
+from ..metrics import Metrics, metrics
+from .inputs import ReportInputs
+
+#: The verdict words.
+READY, PROBLEMS, UNCHECKED = "ready", "problems found", "not checked"
+
+#: Figures of an ordering that the tables and charts compare, in order.
+FIGURES = ("bandwidth", "profile", "max_wavefront", "rms_wavefront", "envelope_ops",
+           "banded_bytes", "skyline_bytes")
+
+
+def plain(value: Any) -> Any:
+    """Turn numpy scalars, arrays, tuples and dataclass dicts into JSON-ready values."""
+    if isinstance(value, dict):
+        return {str(k): plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return plain(value.tolist())
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating):
+        value = float(value)
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, np.bool_):
+        return bool(value)
+    return value
+
+
+def _as_dict(obj: Any) -> Any:
+    return plain(obj.to_dict()) if hasattr(obj, "to_dict") else plain(obj)
+
+
+def free_mode_count(modes: Any) -> int | None:
+    """The number of zero-energy modes a modes result reports, if it says."""
+    if modes is None:
+        return None
+    for name in ("n_modes", "n_free", "count"):
+        value = getattr(modes, name, None)
+        if isinstance(value, (int, np.integer)):
+            return int(value)
+    return None
+
+
+def verdict(inputs: ReportInputs) -> dict[str, str]:
+    """One-line verdict: ``ready``, ``problems found`` or ``not checked``, and why."""
+    reasons = []
+    if inputs.findings is not None:
+        errors = [f for f in inputs.findings if getattr(f, "severity", "") == "error"]
+        if errors:
+            reasons.append(f"{len(errors)} error finding{'s' * (len(errors) != 1)} "
+                           f"({', '.join(f.code for f in errors[:4])})")
+    free = free_mode_count(inputs.modes)
+    if free:
+        reasons.append(f"{free} zero-energy mode{'s' * (free != 1)} left by the supports: "
+                       "the stiffness matrix is singular")
+    if reasons:
+        return {"status": PROBLEMS, "reason": "; ".join(reasons)}
+    if inputs.findings is None:
+        return {"status": UNCHECKED, "reason": "the mesh checks were not run"}
+    warnings = sum(1 for f in inputs.findings if getattr(f, "severity", "") == "warning")
+    tail = f" ({warnings} warning{'s' * (warnings != 1)} to review)" if warnings else ""
+    return {"status": READY, "reason": f"no error found by the checks{tail}"}
+
+
+def not_analysed(inputs: ReportInputs) -> list[str]:
+    """Plain statements of what this report does not cover."""
+    out = []
+    if inputs.findings is None:
+        out.append("Mesh checks (orphan and coincident nodes, element quality, weak "
+                   "joints) were not run.")
+    if inputs.perm is None:
+        out.append("No renumbering was applied: the figures describe the current "
+                   "numbering only.")
+    if inputs.comparison is None:
+        out.append("Orderings were not compared.")
+    if inputs.supports is None:
+        out.append("No supports were given: held DOFs and reactions are not counted.")
+    if inputs.modes is None:
+        out.append("Zero-energy (rigid-body) modes were not analysed.")
+    if inputs.equations is None:
+        out.append("Equations with held DOFs eliminated were not counted.")
+    for block in inputs.summary.skipped:
+        out.append(f"Cell block not analysed: {block}.")
+    return out
+
+
+def _level_pair(before: Metrics, after: Metrics | None) -> dict[str, Any]:
+    out: dict[str, Any] = {"current": before.to_dict()}
+    if after is not None:
+        out["renumbered"] = after.to_dict()
+    return out
+
+
+def renumbering(inputs: ReportInputs) -> dict[str, Any] | None:
+    """Figures of the chosen ordering beside those of the current numbering."""
+    if inputs.perm is None:
+        return None
+    s = inputs.summary
+    return {
+        "method": inputs.method or "given ordering",
+        "nodes": _level_pair(s.node_level, metrics(inputs.graph, inputs.perm)),
+        "dofs": _level_pair(s.dof_level, metrics(inputs.graph, inputs.perm, inputs.layout)),
+    }
+
+
+def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None = None
+                    ) -> dict[str, Any]:
+    """The whole report as JSON-ready data.
+
+    Parameters
+    ----------
+    inputs
+        What was analysed.
+    figures
+        ``{"file": ..., "caption": ...}`` of each figure written beside the report.
+    """
+    s = inputs.summary
+    supports = None
+    if inputs.supports is not None:
+        supports = {"applied": _as_dict(inputs.supports),
+                    "held_dofs": int(inputs.supports.n_fixed_dofs),
+                    "supported_nodes": int(inputs.supports.n_supported_nodes)}
+    return {
+        "bandwise_version": __version__,
+        "created": inputs.created.isoformat(),
+        "file": s.source,
+        "file_name": Path(s.source).name if s.source else "",
+        "caution": CAUTION,
+        "verdict": verdict(inputs),
+        "mesh": plain(s.to_dict()),
+        "findings": (None if inputs.findings is None
+                     else [_as_dict(f) for f in inputs.findings]),
+        "renumbering": renumbering(inputs),
+        "comparison": None if inputs.comparison is None else _as_dict(inputs.comparison),
+        "supports": supports,
+        "modes": None if inputs.modes is None else _as_dict(inputs.modes),
+        "equations": None if inputs.equations is None else _as_dict(inputs.equations),
+        "not_analysed": not_analysed(inputs),
+        "figures": list(figures or []),
+    }

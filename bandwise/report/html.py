@@ -1,0 +1,398 @@
+"""The report page: one self-contained HTML file rendered from the report document.
+
+Figures are embedded as base64 PNG data URIs and the style sheet is inline:
+the page needs no script, no network and no companion file, and a print
+style sheet keeps it readable on paper.  Every number in a table is written
+as ``<data value="exact">shown</data>``, so the exact figure of
+``report.json`` sits beside the rounded one a reader sees.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import json
+from collections.abc import Iterable, Mapping, Sequence
+from typing import Any
+
+from ..tables import human_bytes, human_count
+from .document import PROBLEMS, READY
+
+#: Labels and units of the ordering figures (a Metrics field -> label, unit).
+FIGURE_LABELS: dict[str, tuple[str, str]] = {
+    "n_rows": ("matrix order", "rows"),
+    "bandwidth": ("bandwidth", "semi-bandwidth max(i - f_i), diagonal excluded"),
+    "profile": ("profile", "sum(i - f_i), diagonal excluded"),
+    "max_wavefront": ("max wavefront", "active rows, the row itself included"),
+    "rms_wavefront": ("RMS wavefront", "root-mean-square over the steps"),
+    "envelope_ops": ("envelope Cholesky work", "multiplications, sum b_i(b_i+3)/2"),
+    "banded_bytes": ("banded storage", "n(b+1) doubles"),
+    "skyline_bytes": ("skyline storage", "P+n doubles and n+1 int64 pointers"),
+}
+
+_CSS = """
+:root { --ink:#1c2630; --muted:#5a6672; --rule:#c9d1d8; --band:#eef2f5; }
+* { box-sizing: border-box; }
+body { font: 15px/1.45 "DejaVu Sans", "Segoe UI", Helvetica, Arial, sans-serif;
+  color: var(--ink); margin: 0 auto; max-width: 1180px; padding: 24px 28px 48px; }
+h1 { font-size: 26px; margin: 0 0 4px; letter-spacing: .2px; }
+h2 { font-size: 19px; margin: 34px 0 10px; padding-bottom: 4px;
+  border-bottom: 2px solid var(--ink); }
+h3 { font-size: 15px; margin: 16px 0 6px; }
+.sub { color: var(--muted); margin: 0 0 14px; }
+table { border-collapse: collapse; margin: 8px 0 14px; font-size: 14px; }
+th, td { border-bottom: 1px solid var(--rule); padding: 4px 10px; text-align: left;
+  vertical-align: top; }
+th { background: var(--band); font-weight: 600; }
+td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.unit { color: var(--muted); font-size: 13px; }
+.verdict { border: 3px solid var(--ink); padding: 10px 14px; margin: 14px 0;
+  font-size: 17px; font-weight: 600; }
+.verdict.ready { border-style: solid; background: #e9f3ec; }
+.verdict.problems { border-style: double; border-width: 6px; background: #f8e7e4; }
+.verdict.unchecked { border-style: dashed; background: #f4f1e6; }
+.caution { border-left: 5px solid var(--ink); padding: 6px 12px; background: var(--band); }
+.finding { border: 1px solid var(--rule); border-left-width: 7px; padding: 6px 12px;
+  margin: 10px 0; break-inside: avoid; }
+.finding.error { border-left-color: #8c1d18; border-left-style: double; }
+.finding.warning { border-left-color: #b36b00; }
+.finding.note { border-left-color: #6b7a88; border-left-style: dotted; }
+.tag { display: inline-block; min-width: 70px; font-size: 12px; font-weight: 700;
+  letter-spacing: .6px; text-transform: uppercase; }
+.ids { font-family: "DejaVu Sans Mono", Consolas, monospace; font-size: 12.5px;
+  word-break: break-all; color: var(--muted); }
+figure { margin: 12px 0 18px; break-inside: avoid; }
+figure img { max-width: 100%; height: auto; border: 1px solid var(--rule); }
+figcaption { font-size: 13px; color: var(--muted); margin-top: 4px; }
+tr.kept td { font-weight: 700; }
+ul.gaps li { margin: 3px 0; }
+footer { margin-top: 40px; font-size: 13px; color: var(--muted); }
+@media print {
+  body { max-width: none; padding: 0; font-size: 11pt; }
+  h2 { break-after: avoid; }
+  section { break-inside: auto; }
+  figure, table, .finding { break-inside: avoid; }
+  .verdict, .caution, th { background: none !important; }
+  a { color: inherit; text-decoration: none; }
+}
+@page { size: A4; margin: 16mm 14mm; }
+"""
+
+
+def esc(text: Any) -> str:
+    """HTML-escape any value's text."""
+    return html.escape(str(text), quote=True)
+
+
+def shown(value: Any, key: str = "") -> str:
+    """A number as a reader sees it: thousands separators, bytes in binary units."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return esc(value)
+    if key.endswith("bytes"):
+        return human_bytes(value)
+    if key.endswith(("ops", "flops")):
+        return human_count(value)
+    if isinstance(value, int):
+        return f"{value:,}"
+    return f"{value:,.1f}" if abs(value) >= 10 else f"{value:.4g}"
+
+
+def number(value: Any, key: str = "") -> str:
+    """A number as ``<data value="exact">shown</data>`` (anything else escaped)."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return esc("" if value is None else value)
+    return f'<data value="{value!r}">{shown(value, key)}</data>'
+
+
+def _cell(value: Any, key: str = "") -> str:
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return f'<td class="n">{number(value, key)}</td>'
+    if isinstance(value, (dict, list)):
+        return f"<td>{_nested(value)}</td>"
+    return f"<td>{esc('' if value is None else value)}</td>"
+
+
+def _nested(value: Any) -> str:
+    """Small nested values inline; numbers keep their exact value."""
+    if isinstance(value, dict):
+        return "; ".join(f"{esc(k)}: {_inline(v, str(k))}" for k, v in value.items())
+    return ", ".join(_inline(v) for v in value)
+
+
+def _inline(value: Any, key: str = "") -> str:
+    if isinstance(value, (dict, list)):
+        return _nested(value)
+    return number(value, key)
+
+
+def table(rows: Iterable[Sequence[Any]], header: Sequence[str] | None = None,
+          keys: Sequence[str] | None = None, row_class: Sequence[str] | None = None) -> str:
+    """An HTML table; ``keys`` name each column's figure (for units such as bytes)."""
+    out = ["<table>"]
+    if header:
+        out.append("<tr>" + "".join(f"<th>{esc(h)}</th>" for h in header) + "</tr>")
+    for k, row in enumerate(rows):
+        cls = f' class="{row_class[k]}"' if row_class and row_class[k] else ""
+        cells = []
+        for j, value in enumerate(row):
+            key = keys[j] if keys and j < len(keys) else ""
+            cells.append(_cell(value, key))
+        out.append(f"<tr{cls}>" + "".join(cells) + "</tr>")
+    out.append("</table>")
+    return "\n".join(out)
+
+
+def records_table(records: Sequence[Mapping[str, Any]], highlight: str | None = None,
+                  name_key: str | None = None) -> str:
+    """A list of flat dicts as a table, one column per key (union, first-seen order)."""
+    keys: list[str] = []
+    for r in records:
+        keys.extend(k for k in r if k not in keys)
+    marks = [("kept" if highlight is not None and name_key and r.get(name_key) == highlight
+              else "") for r in records]
+    return table([[r.get(k) for k in keys] for r in records],
+                 header=[k.replace("_", " ") for k in keys], keys=keys, row_class=marks)
+
+
+def facts_table(data: Mapping[str, Any], prefix: str = "") -> str:
+    """Any nested dict as ``key | value`` rows (nested keys joined with ' / ')."""
+    rows: list[list[Any]] = []
+    keys: list[str] = []
+
+    def walk(d: Mapping[str, Any], path: str) -> None:
+        for k, v in d.items():
+            label = f"{path}{k}".replace("_", " ")
+            if isinstance(v, dict) and v:
+                walk(v, f"{path}{k} / ")
+            else:
+                rows.append([label, v])
+                keys.append(str(k))
+
+    walk(data, prefix)
+    out = ["<table>"]
+    for (label, v), key in zip(rows, keys):
+        out.append(f"<tr><th>{esc(label)}</th>{_cell(v, key)}</tr>")
+    out.append("</table>")
+    return "\n".join(out)
+
+
+def figure(png: bytes, caption: str, alt: str) -> str:
+    """An embedded PNG figure with its caption."""
+    data = base64.b64encode(png).decode("ascii")
+    return (f'<figure><img src="data:image/png;base64,{data}" alt="{esc(alt)}">'
+            f"<figcaption>{esc(caption)}</figcaption></figure>")
+
+
+# --------------------------------------------------------------------------- sections
+
+
+def header_section(doc: Mapping[str, Any]) -> str:
+    """Title, what was analysed, size, verdict and the caution."""
+    mesh = doc["mesh"]
+    v = doc["verdict"]
+    css = {READY: "ready", PROBLEMS: "problems"}.get(v["status"], "unchecked")
+    symbol = {READY: "&#10004;", PROBLEMS: "&#10006;"}.get(v["status"], "?")
+    facts = [
+        ["file", mesh.get("file", "")], ["format", mesh.get("format", "")],
+        ["report created (UTC)", doc["created"]],
+        ["bandwise version", doc["bandwise_version"]],
+        ["nodes", mesh["nodes"]], ["elements", mesh["n_elements"]],
+        ["DOFs", mesh["dofs"]["total"]],
+    ]
+    return "\n".join([
+        "<header>",
+        f"<h1>Solver readiness: {esc(doc['file_name'] or 'mesh')}</h1>",
+        ('<p class="sub">Pre-run check, sizing and numbering of a finite-element mesh '
+        "for a direct solver.</p>"),
+        table(facts, keys=["", "nodes"]),
+        (f'<div class="verdict {css}">{symbol} Verdict: {esc(v["status"])} '
+        f'&mdash; {esc(v["reason"])}</div>'),
+        f'<p class="caution">{esc(doc["caution"])}</p>',
+        "</header>",
+    ])
+
+
+def mesh_section(doc: Mapping[str, Any], figures_html: str) -> str:
+    """What the mesh is made of, with its picture."""
+    mesh = dict(doc["mesh"])
+    mesh.pop("current_numbering", None)
+    return "\n".join(["<section id='mesh'>", "<h2>The mesh</h2>", facts_table(mesh),
+                      figures_html, "</section>"])
+
+
+def findings_section(doc: Mapping[str, Any], figures_html: str) -> str:
+    """The check results, errors first, each with its ids and details."""
+    findings = doc["findings"]
+    if findings is None:
+        return ""
+    order = {"error": 0, "warning": 1, "note": 2}
+    items = sorted(findings, key=lambda f: order.get(f.get("severity", ""), 3))
+    out = ["<section id='findings'>", "<h2>Findings</h2>"]
+    counts = {s: sum(1 for f in items if f.get("severity") == s) for s in order}
+    out.append(f"<p>{counts['error']} error(s), {counts['warning']} warning(s), "
+               f"{counts['note']} note(s).</p>")
+    if not items:
+        out.append("<p>The checks found nothing to report.</p>")
+    for f in items:
+        sev = f.get("severity", "note")
+        out.append(f'<article class="finding {esc(sev)}">')
+        out.append(f'<h3><span class="tag">{esc(sev)}</span> {esc(f.get("code", ""))} '
+                   f'&mdash; count {number(f.get("count"))}</h3>')
+        out.append(f"<p>{esc(f.get('message', ''))}</p>")
+        for key, kind in (("node_ids", "node_id_kind"), ("element_ids", "element_id_kind")):
+            ids = f.get(key) or []
+            if ids:
+                head = ", ".join(str(i) for i in ids[:40])
+                more = f" &hellip; and {len(ids) - 40:,} more (all in report.json)" \
+                    if len(ids) > 40 else ""
+                what = "nodes" if key == "node_ids" else "elements"
+                out.append(f'<p class="ids">{what} ({esc(f.get(kind, ""))}): '
+                           f"{esc(head)}{more}</p>")
+        if f.get("where"):
+            out.append(f"<p>where: {esc(', '.join(map(str, f['where'])))}</p>")
+        if f.get("details"):
+            out.append(records_table(f["details"]))
+        out.append("</article>")
+    out.append(figures_html)
+    out.append("</section>")
+    return "\n".join(out)
+
+
+def _ratio(a: Any, b: Any) -> str:
+    if isinstance(a, (int, float)) and isinstance(b, (int, float)) and a:
+        return f"{b / a:.3g}&times;"
+    return ""
+
+
+def sizing_section(doc: Mapping[str, Any], figures_html: str) -> str:
+    """Bandwidth, profile, wavefront and storage, current and renumbered, with curves."""
+    cur = doc["mesh"]["current_numbering"]
+    ren = doc.get("renumbering")
+    header = ["figure", "nodes: current"]
+    if ren:
+        header += ["nodes: renumbered", "ratio"]
+    header += ["DOFs: current"]
+    if ren:
+        header += ["DOFs: renumbered", "ratio"]
+    header += ["unit / convention"]
+    out = ["<section id='sizing'>", "<h2>Matrix size and numbering</h2>"]
+    if ren:
+        out.append(f"<p>Renumbered with <strong>{esc(ren['method'])}</strong>; ratio = "
+                   "renumbered / current (below 1 is better).</p>")
+    rows = ["<table>", "<tr>" + "".join(f"<th>{esc(h)}</th>" for h in header) + "</tr>"]
+    for key, (label, unit) in FIGURE_LABELS.items():
+        cells = [f"<td>{esc(label)}</td>", _cell(cur["nodes"][key], key)]
+        if ren:
+            after = ren["nodes"]["renumbered"][key]
+            cells += [_cell(after, key), f'<td class="n">{_ratio(cur["nodes"][key], after)}</td>']
+        cells.append(_cell(cur["dofs"][key], key))
+        if ren:
+            after = ren["dofs"]["renumbered"][key]
+            cells += [_cell(after, key), f'<td class="n">{_ratio(cur["dofs"][key], after)}</td>']
+        cells.append(f'<td class="unit">{esc(unit)}</td>')
+        rows.append("<tr>" + "".join(cells) + "</tr>")
+    rows.append("</table>")
+    out += rows
+    out.append(figures_html)
+    out.append("</section>")
+    return "\n".join(out)
+
+
+def comparison_section(doc: Mapping[str, Any], figures_html: str) -> str:
+    """The orderings tried, as a table (the kept one in bold) and a chart."""
+    comp = doc.get("comparison")
+    if comp is None:
+        return ""
+    out = ["<section id='orderings'>", "<h2>Orderings compared</h2>"]
+    rows = comp.get("rows") if isinstance(comp, dict) else None
+    best = comp.get("best") if isinstance(comp, dict) else None
+    if isinstance(best, dict):
+        best = best.get("method") or best.get("name")
+    if rows and isinstance(rows, list) and all(isinstance(r, dict) for r in rows):
+        name_key = next((k for k in ("method", "name") if k in rows[0]), None)
+        out.append(records_table(rows, highlight=best, name_key=name_key))
+        rest = {k: v for k, v in comp.items() if k != "rows"}
+        if rest:
+            out.append(facts_table(rest))
+    else:
+        out.append(facts_table(comp if isinstance(comp, dict) else {"result": comp}))
+    out.append(figures_html)
+    out.append("</section>")
+    return "\n".join(out)
+
+
+def supports_section(doc: Mapping[str, Any], figures_html: str) -> str:
+    """Supports given, held DOFs, zero-energy modes and the equation count."""
+    parts = [(k, doc.get(k)) for k in ("supports", "modes", "equations")]
+    if all(v is None for _, v in parts):
+        return ""
+    out = ["<section id='supports'>", "<h2>Supports, free modes and equations</h2>"]
+    sup = doc.get("supports")
+    if sup is not None:
+        out.append("<h3>Supports</h3>")
+        if sup.get("applied"):
+            out.append(records_table(sup["applied"]))
+        out.append(table([["held DOFs", sup["held_dofs"]],
+                          ["supported nodes", sup["supported_nodes"]]]))
+    for key, title in (("modes", "Zero-energy modes"), ("equations", "Equations")):
+        value = doc.get(key)
+        if value is None:
+            continue
+        out.append(f"<h3>{title}</h3>")
+        out.append(facts_table(value if isinstance(value, dict) else {key: value}))
+    out.append(figures_html)
+    out.append("</section>")
+    return "\n".join(out)
+
+
+def gaps_section(doc: Mapping[str, Any]) -> str:
+    """What this report does not cover, said plainly."""
+    gaps = doc.get("not_analysed") or []
+    items = "".join(f"<li>{esc(g)}</li>" for g in gaps) or "<li>Nothing: every part ran.</li>"
+    return (f"<section id='not-analysed'><h2>Not analysed</h2><ul class='gaps'>{items}"
+            "</ul></section>")
+
+
+def render_html(doc: Mapping[str, Any], images: Mapping[str, bytes]) -> str:
+    """The report page from the document and the PNG bytes of its figures.
+
+    Parameters
+    ----------
+    doc
+        The report document (:func:`~bandwise.report.document.report_document`).
+    images
+        File name -> PNG bytes of every figure listed in ``doc["figures"]``;
+        each figure goes in the section its entry names.
+    """
+    by_section: dict[str, list[str]] = {}
+    for fig in doc.get("figures", []):
+        png = images[fig["file"]]
+        by_section.setdefault(fig["section"], []).append(
+            figure(png, fig["caption"], fig.get("alt", fig["caption"])))
+
+    def figs(name: str) -> str:
+        return "\n".join(by_section.get(name, []))
+
+    body = [
+        header_section(doc),
+        findings_section(doc, figs("findings")),
+        mesh_section(doc, "" if doc.get("findings") is not None else figs("findings")),
+        sizing_section(doc, figs("sizing")),
+        comparison_section(doc, figs("orderings")),
+        supports_section(doc, figs("supports")),
+        gaps_section(doc),
+        (f"<footer><p>{esc(doc['caution'])}</p><p>Machine-readable figures: report.json "
+        f"(bandwise {esc(doc['bandwise_version'])}).</p></footer>"),
+    ]
+    title = f"bandwise report: {doc.get('file_name') or 'mesh'}"
+    return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+            f"<title>{esc(title)}</title>\n"
+            '<meta name="viewport" content="width=device-width, initial-scale=1">\n'
+            f"<style>{_CSS}</style>\n</head>\n<body>\n"
+            + "\n".join(b for b in body if b) + "\n</body>\n</html>\n")
+
+
+def json_text(doc: Mapping[str, Any]) -> str:
+    """The document as indented JSON text."""
+    return json.dumps(doc, indent=2, allow_nan=False) + "\n"
+

@@ -1,0 +1,60 @@
+"""What a report is made from: plain results of the analysis, gathered in one value."""
+
+from __future__ import annotations
+
+import datetime as dt
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..dofs import DofLayout
+from ..graph import NodeGraph
+from ..model import Model
+from ..summary import MeshSummary
+
+
+def _now() -> dt.datetime:
+    return dt.datetime.now(dt.UTC).replace(microsecond=0)
+
+
+@dataclass(frozen=True)
+class ReportInputs:
+    """Results the report presents; each optional part gets a section only when given.
+
+    Attributes
+    ----------
+    model, graph, layout, summary
+        The mesh, its node graph, its DOFs and its sizing summary (always present).
+    findings
+        Results of the mesh checks (:class:`~bandwise.checks.findings.Finding`),
+        or None when the checks were not run.
+    perm, method
+        The chosen ordering ``perm[new] = old`` and its name, or None when the
+        mesh was not renumbered.
+    comparison
+        The comparison of orderings (``bandwise.compare``), or None.
+    supports
+        The applied supports (:class:`~bandwise.supports.SupportSet`), or None.
+    modes
+        Zero-energy (rigid-body and mechanism) modes left by the supports, or None.
+    equations
+        Equation count with held DOFs eliminated, or None.
+    created
+        Time stamp written in the report (UTC).
+    """
+
+    model: Model
+    graph: NodeGraph
+    layout: DofLayout
+    summary: MeshSummary
+    findings: Sequence[Any] | None = None
+    perm: NDArray[np.integer] | None = None
+    method: str | None = None
+    comparison: Any | None = None
+    supports: Any | None = None
+    modes: Any | None = None
+    equations: Any | None = None
+    created: dt.datetime = field(default_factory=_now)
