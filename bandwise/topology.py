@@ -200,9 +200,8 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
 
     Notes
     -----
-    Each facet's nodes are sorted, the sorted tuples are packed into one
-    integer key when the node count allows it (else sorted lexicographically),
-    and equal keys are grouped with one sort: O(F log F) for F facets.
+    Facets with the same node set are grouped by :func:`group_node_sets`:
+    O(F log F) for F facets.
     """
     if coupling is None:
         coupling = coupling_cells(model)
@@ -223,7 +222,7 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
         empty = np.zeros(0, dtype=np.int64)
         return FacetTable(np.zeros((0, MAX_FACET_NODES), np.int64), empty, empty, empty, empty)
     nodes = np.concatenate(parts_nodes)
-    group, multiplicity = _group_equal_sets(nodes, model.n_nodes)
+    group, multiplicity = group_node_sets(nodes)
     return FacetTable(nodes, np.concatenate(parts_block), np.concatenate(parts_cell),
                       group, multiplicity)
 
@@ -232,26 +231,59 @@ def _corner_count(cell_type: str, width: int) -> int:
     return width if cell_type == "polygon" else CORNER_COUNT[cell_type]
 
 
-def _group_equal_sets(nodes: NDArray[np.int64], n: int) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """Group rows with the same node set: (group id of each row, size of each group)."""
-    s = np.sort(nodes, axis=1) + 1  # padding -1 becomes 0
-    base = n + 1
-    width = s.shape[1]
-    if width * np.log2(max(base, 2)) < 62:
-        key = np.zeros(len(s), dtype=np.int64)
-        for c in range(width):
-            key = key * base + s[:, c]
-        _, group, counts = np.unique(key, return_inverse=True, return_counts=True)
-    else:
-        order = np.lexsort(s.T[::-1])
-        ss = s[order]
-        new = np.ones(len(ss), dtype=bool)
-        new[1:] = (ss[1:] != ss[:-1]).any(axis=1)
-        gid_sorted = np.cumsum(new) - 1
-        group = np.empty(len(s), dtype=np.int64)
-        group[order] = gid_sorted
-        counts = np.bincount(gid_sorted)
-    return group.astype(np.int64).ravel(), counts.astype(np.int64)
+def group_node_sets(nodes: NDArray[np.int64]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Group rows holding the same set of nodes.
+
+    Parameters
+    ----------
+    nodes
+        ``(m, k)`` node indices; ``-1`` entries are padding.
+
+    Returns
+    -------
+    group
+        ``(m,)`` id of the distinct node set of each row (ids in key order).
+    size
+        Number of rows in each group.
+
+    Notes
+    -----
+    Each sorted row is hashed to one 64-bit key and the keys are grouped by
+    one sort, O(m log m); rows are then compared with their group's first
+    row, and a (rare) hash collision falls back to a lexicographic sort.
+    """
+    s = np.sort(np.asarray(nodes, dtype=np.int64), axis=1)
+    if len(s) == 0:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+    key = _row_hash(s)
+    _, first, group, counts = np.unique(key, return_index=True, return_inverse=True,
+                                        return_counts=True)
+    group = group.ravel()
+    if np.array_equal(s[first[group]], s):
+        return group.astype(np.int64), counts.astype(np.int64)
+    return _lexicographic_groups(s)
+
+
+def _row_hash(s: NDArray[np.int64]) -> NDArray[np.uint64]:
+    """A 64-bit mixing hash of each row (splitmix-style multiply and xor-shift)."""
+    h = np.full(len(s), 0x9E3779B97F4A7C15, dtype=np.uint64)
+    with np.errstate(over="ignore"):
+        for c in range(s.shape[1]):
+            h ^= (s[:, c] + 1).astype(np.uint64)
+            h *= np.uint64(0xBF58476D1CE4E5B9)
+            h ^= h >> np.uint64(31)
+    return h
+
+
+def _lexicographic_groups(s: NDArray[np.int64]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    order = np.lexsort(s.T[::-1])
+    ss = s[order]
+    new = np.ones(len(ss), dtype=bool)
+    new[1:] = (ss[1:] != ss[:-1]).any(axis=1)
+    gid_sorted = np.cumsum(new) - 1
+    group = np.empty(len(s), dtype=np.int64)
+    group[order] = gid_sorted
+    return group, np.bincount(gid_sorted).astype(np.int64)
 
 
 def face_connected_blocks(model: Model, table: FacetTable | None = None,

@@ -1,0 +1,111 @@
+"""Mesh checks before a large run: each finding is a value, never a print.
+
+:func:`run_checks` runs every check of the mesh and returns the findings,
+most serious first:
+
+1. connected parts through element coupling (:mod:`.parts`);
+2. orphan nodes (:mod:`.orphans`);
+3. coincident nodes, seams apart from cracks (:mod:`.coincident`);
+4. weak joints between regions and articulation nodes (:mod:`.joints`);
+5. element defects (:mod:`.elements`);
+6. free faces and edges, free faces lying on each other (:mod:`.faces`);
+
+plus hanging nodes (:mod:`.hanging`) and the cell blocks not analysed.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from ..graph import NodeGraph, node_graph
+from ..meshio_io import skipped_blocks
+from ..model import Model
+from ..progress import Progress, step
+from .coincident import check_coincident
+from .context import CheckContext, CheckOptions
+from .elements import check_elements
+from .faces import check_free_facets
+from .findings import SEVERITIES, Finding, severity_rank
+from .hanging import check_hanging_nodes
+from .joints import articulation_nodes, check_joints
+from .orphans import check_orphans
+from .parts import check_parts
+
+__all__ = [
+    "SEVERITIES", "CheckOptions", "Finding", "articulation_nodes", "count_by_severity",
+    "run_checks", "severity_rank",
+]
+
+#: The checks in the order they run, with the progress label of each.
+CHECKS: tuple[tuple[str, Callable[[CheckContext], list[Finding]]], ...] = (
+    ("checking parts", check_parts),
+    ("checking orphan nodes", check_orphans),
+    ("checking coincident nodes", check_coincident),
+    ("checking joints between regions", check_joints),
+    ("checking elements", check_elements),
+    ("checking free faces", check_free_facets),
+    ("checking hanging nodes", check_hanging_nodes),
+)
+
+
+def run_checks(model: Model, graph: NodeGraph | None = None,
+               options: CheckOptions | None = None,
+               progress: Progress | None = None) -> list[Finding]:
+    """Run every mesh check and return the findings, most serious first.
+
+    Parameters
+    ----------
+    model
+        The mesh (not changed).
+    graph
+        Its node graph (:func:`~bandwise.graph.node_graph`), if already built.
+    options
+        Tolerances and limits; defaults when None.
+    progress
+        Receives the steps (the library itself never prints).
+
+    Returns
+    -------
+    list of Finding
+        Sorted by severity (errors first), then in check order.  A mesh with
+        no element coupling nodes gives a single ``mesh.no_elements`` error
+        plus its orphan nodes.
+    """
+    options = options or CheckOptions()
+    if graph is None:
+        with step(progress, "building node graph"):
+            graph = node_graph(model)
+    ctx = CheckContext(model, graph, options)
+    findings = _skipped(model)
+    if not ctx.has_elements:
+        findings.append(Finding(
+            "mesh.no_elements", "error", model.n_cells,
+            "the mesh has no element that couples nodes (only vertex cells, cell types "
+            "bandwise does not analyse, or no cells at all): there is nothing to solve"))
+        findings += check_orphans(ctx)
+        return _sorted(findings)
+    for label, check in CHECKS:
+        with step(progress, label):
+            findings += check(ctx)
+    return _sorted(findings)
+
+
+def _skipped(model: Model) -> list[Finding]:
+    skipped = skipped_blocks(model)
+    if not skipped:
+        return []
+    return [Finding("mesh.skipped_blocks", "warning", len(skipped),
+                    f"{len(skipped)} cell blocks are of types bandwise does not analyse and "
+                    "were left out of every check and count", where=tuple(skipped))]
+
+
+def _sorted(findings: list[Finding]) -> list[Finding]:
+    order = np.argsort([severity_rank(f.severity) for f in findings], kind="stable")
+    return [findings[i] for i in order]
+
+
+def count_by_severity(findings: list[Finding]) -> dict[str, int]:
+    """Number of findings of each severity, every severity listed."""
+    return {s: sum(1 for f in findings if f.severity == s) for s in SEVERITIES}

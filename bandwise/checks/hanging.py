@@ -1,0 +1,96 @@
+"""Hanging nodes: corner nodes lying inside a free edge or face of another element.
+
+Where a fine mesh meets a coarse one without transition, the nodes of the
+fine side sit on an edge (2D) or face (3D) of a coarse element without
+being its nodes.  Unless tied by constraint equations, the displacement is
+not continuous there: the mesh opens a gap under load.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy.spatial import cKDTree
+
+from .context import CheckContext
+from .findings import Finding
+
+
+def check_hanging_nodes(ctx: CheckContext) -> list[Finding]:
+    """Report corner nodes of free facets that lie inside another free facet."""
+    t = ctx.table
+    if len(t.group) == 0:
+        return []
+    free = np.flatnonzero(t.is_free)
+    dims = np.asarray(ctx.dims)[t.block[free]]
+    free = free[dims >= 2]
+    if free.size < 2:
+        return []
+    tol, rule = ctx.tolerance
+    nodes = t.nodes[free]
+    candidates = np.unique(nodes[nodes >= 0])
+    pts = ctx.model.points
+    if pts.shape[1] == 2:
+        pts = np.column_stack([pts, np.zeros(len(pts))])
+    facet_pts = pts[np.where(nodes >= 0, nodes, 0)]
+    valid = nodes >= 0
+    k = valid.sum(axis=1)
+    centre = (facet_pts * valid[..., None]).sum(axis=1) / k[:, None]
+    radius = np.where(valid, np.linalg.norm(facet_pts - centre[:, None], axis=2), 0).max(axis=1)
+    tree = cKDTree(pts[candidates])
+    near = tree.query_ball_point(centre, radius + tol)
+    lengths = np.fromiter((len(x) for x in near), dtype=np.int64, count=len(near))
+    if lengths.sum() == 0:
+        return []
+    facet = np.repeat(np.arange(len(free)), lengths)
+    node = candidates[np.concatenate([np.asarray(x, dtype=np.int64) for x in near if x])]
+    inside = _inside_facet(pts[node], facet_pts[facet], k[facet], tol)
+    inside &= ~(nodes[facet] == node[:, None]).any(axis=1)
+    hanging = np.unique(node[inside])
+    if hanging.size == 0:
+        return []
+    return [Finding(
+        "nodes.hanging", "warning", int(hanging.size),
+        f"{hanging.size} nodes lie on an edge or face of a neighbouring element without being "
+        f"its nodes ({rule}): hanging nodes; unless tied by constraint equations, the "
+        "displacement is not continuous there",
+        node_ids=ctx.node_ids(hanging), node_id_kind=ctx.node_id_kind)]
+
+
+def _inside_facet(p: NDArray[np.float64], corners: NDArray[np.float64], k: NDArray[np.int64],
+                  tol: float) -> NDArray[np.bool_]:
+    """True where point ``p`` lies on its facet (a segment, triangle or quad), off its corners."""
+    off_corners = (np.linalg.norm(corners - p[:, None], axis=2) > tol).all(axis=1)
+    out = np.zeros(len(p), dtype=bool)
+    seg = k == 2
+    out[seg] = _on_segment(p[seg], corners[seg, 0], corners[seg, 1], tol)
+    tri = k == 3
+    out[tri] = _on_triangle(p[tri], corners[tri, 0], corners[tri, 1], corners[tri, 2], tol)
+    quad = k == 4
+    c = corners[quad]
+    out[quad] = (_on_triangle(p[quad], c[:, 0], c[:, 1], c[:, 2], tol)
+                 | _on_triangle(p[quad], c[:, 0], c[:, 2], c[:, 3], tol))
+    return out & off_corners
+
+
+def _on_segment(p: NDArray[np.float64], a: NDArray[np.float64], b: NDArray[np.float64],
+                tol: float) -> NDArray[np.bool_]:
+    d = b - a
+    length2 = np.einsum("ij,ij->i", d, d)
+    s = np.einsum("ij,ij->i", p - a, d) / np.where(length2 > 0, length2, 1.0)
+    foot = a + s[:, None] * d
+    return (np.linalg.norm(p - foot, axis=1) <= tol) & (s > 0) & (s < 1) & (length2 > 0)
+
+
+def _on_triangle(p: NDArray[np.float64], a: NDArray[np.float64], b: NDArray[np.float64],
+                 c: NDArray[np.float64], tol: float) -> NDArray[np.bool_]:
+    n = np.cross(b - a, c - a)
+    area2 = np.linalg.norm(n, axis=1)
+    nz = np.where(area2 > 0, area2, 1.0)
+    dist = np.abs(np.einsum("ij,ij->i", p - a, n)) / nz
+    # barycentric coordinates from sub-triangle areas (signed along n)
+    wa = np.einsum("ij,ij->i", np.cross(b - p, c - p), n) / nz**2
+    wb = np.einsum("ij,ij->i", np.cross(c - p, a - p), n) / nz**2
+    wc = 1.0 - wa - wb
+    eps = 1e-9
+    return (area2 > 0) & (dist <= tol) & (wa >= -eps) & (wb >= -eps) & (wc >= -eps)
