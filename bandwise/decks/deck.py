@@ -1,0 +1,236 @@
+"""What a solver input deck holds that matters to numbering, and where its node ids are written.
+
+A :class:`Deck` is read by :mod:`bandwise.decks.keyword_deck` (``.inp``) or
+:mod:`bandwise.decks.bulk_deck` (``.bdf``, ``.nas``, ``.fem``).  Besides the
+mesh (nodes, elements, node sets) it keeps the original text and the exact
+place of every node id written in it (:class:`NodeRef`), so that a
+renumbering rewrites those numbers in place and leaves every other byte as
+it was: materials, properties, steps, loads on elements, comments.
+
+Node ids after renumbering
+--------------------------
+bandwise keeps the deck's own set of node ids and permutes their
+assignment: the node at new position ``k`` (0-based) receives the
+``k``-th smallest original id.  When the ids are ``1..n`` (the usual case)
+this is simply "new id = 1-based new position"; when they are not
+contiguous (ids per part, gaps left by a mesher) every id still names
+exactly one node, id ranges reserved by other tools stay free, and every
+number still fits the field it was written in.  See :func:`new_ids`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ..errors import MeshReadError
+from ..model import CellBlock, Model, check_permutation
+
+
+@dataclass(frozen=True)
+class NodeRef:
+    """One node id written in the deck text.
+
+    Attributes
+    ----------
+    line
+        0-based line index in :attr:`Deck.lines`.
+    start, end
+        Character span of the field or token holding the number (for a
+        fixed-width field, the whole field).
+    node_id
+        The id written there.
+    card
+        Name of the card or keyword the reference belongs to (upper case).
+    width
+        Field width for fixed-width bulk fields (8 or 16), else 0.
+    """
+
+    line: int
+    start: int
+    end: int
+    node_id: int
+    card: str
+    width: int = 0
+
+
+@dataclass(frozen=True)
+class DeckElements:
+    """Elements of one deck element type, in file order.
+
+    Attributes
+    ----------
+    card
+        The deck's element name (``C3D8R``, ``CHEXA`` ...).
+    cell_type
+        meshio cell type the connectivity follows (node order converted).
+    element_ids
+        Element ids as written.
+    connectivity
+        ``(m, k)`` node ids (not indices) per element.
+    """
+
+    card: str
+    cell_type: str
+    element_ids: NDArray[np.int64]
+    connectivity: NDArray[np.int64]
+
+
+@dataclass(frozen=True)
+class ListRewrite:
+    """A card that lists nodes as an id range: written out in full after renumbering.
+
+    A range (``GENERATE``, ``THRU``) no longer describes a set of nodes once
+    they are renumbered, so the card is replaced by an explicit list.
+
+    Attributes
+    ----------
+    card
+        Card or keyword name.
+    lines
+        Line indices the card occupies; the first receives the new text,
+        the others are emptied.
+    head
+        Keyword deck: the keyword line without its range option.  Bulk deck:
+        the card's leading fields (name, set id, components) before the grids.
+    node_ids
+        The ids listed, in range order.
+    kind
+        ``"keyword"`` or ``"bulk"``.
+    """
+
+    card: str
+    lines: tuple[int, ...]
+    head: tuple[str, ...]
+    node_ids: NDArray[np.int64]
+    kind: str
+
+
+@dataclass
+class Deck:
+    """A solver input deck: its text, its mesh, and where its node ids are written.
+
+    Attributes
+    ----------
+    path
+        The file read.
+    kind
+        ``"keyword"`` (``.inp``) or ``"bulk"`` (``.bdf``/``.nas``/``.fem``).
+    lines
+        The text, one string per line, line endings kept.
+    node_ids, points
+        Node ids in file order and their coordinates (as written).
+    elements
+        Element blocks, one per deck element type.
+    node_sets
+        Named node sets: name -> node ids.
+    supports
+        Boundary-condition cards: (node id, DOF names) pairs, in file order.
+    links
+        Rigid links and multi-point constraints: (card, node ids) groups.
+    loads
+        Load cards naming nodes: (card, node id) pairs.
+    refs
+        Every node id written in the text that a renumbering rewrites.
+    list_rewrites
+        Cards that list nodes as id ranges.
+    unhandled
+        Cards that may name nodes but whose node fields are not rewritten:
+        name -> count.  :func:`bandwise.decks.renumber_deck` refuses a deck
+        with any.
+    includes
+        Files named by include cards (read for the mesh, never rewritten).
+    notes
+        Remarks made while reading (ignored options, assumptions).
+    """
+
+    path: str
+    kind: str
+    lines: list[str]
+    node_ids: NDArray[np.int64]
+    points: NDArray[np.float64]
+    elements: list[DeckElements] = field(default_factory=list)
+    node_sets: dict[str, NDArray[np.int64]] = field(default_factory=dict)
+    supports: list[tuple[int, tuple[str, ...]]] = field(default_factory=list)
+    links: list[tuple[str, NDArray[np.int64]]] = field(default_factory=list)
+    loads: list[tuple[str, int]] = field(default_factory=list)
+    refs: list[NodeRef] = field(default_factory=list)
+    list_rewrites: list[ListRewrite] = field(default_factory=list)
+    unhandled: dict[str, int] = field(default_factory=dict)
+    includes: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def n_nodes(self) -> int:
+        """Number of nodes defined in the deck."""
+        return int(self.node_ids.size)
+
+    def index_of(self, ids: NDArray[np.integer] | list[int], what: str = "a card") -> NDArray[np.int64]:
+        """0-based node indices of node ids.
+
+        Raises
+        ------
+        MeshReadError
+            If an id names no node of the deck.
+        """
+        ids = np.asarray(ids, dtype=np.int64)
+        order = np.argsort(self.node_ids, kind="stable")
+        sorted_ids = self.node_ids[order]
+        if ids.size == 0:
+            return np.zeros(ids.shape, dtype=np.int64)
+        if sorted_ids.size == 0:
+            raise MeshReadError(f"{self.path}: {what} names node {int(ids.flat[0])}, but the deck "
+                             "defines no nodes")
+        pos = np.minimum(np.searchsorted(sorted_ids, ids), sorted_ids.size - 1)
+        missing = sorted_ids[pos] != ids
+        if missing.any():
+            raise MeshReadError(f"{self.path}: {what} names node {int(ids[missing].flat[0])}, "
+                             "which the deck does not define")
+        return order[pos]
+
+    def to_model(self) -> Model:
+        """The mesh of the deck as a :class:`~bandwise.model.Model`, original ids kept.
+
+        Nodes are in file order, ``node_ids`` holds their deck ids, node sets
+        become point sets, and each element type becomes a cell block with
+        the element ids as the cell field ``element_id``.
+        """
+        blocks = [CellBlock(e.cell_type, self.index_of(e.connectivity, f"{e.card} element"))
+                  for e in self.elements]
+        element_ids = [e.element_ids.copy() for e in self.elements]
+        point_sets = {name: self.index_of(ids, f"node set {name}")
+                      for name, ids in self.node_sets.items()}
+        fmt = "abaqus" if self.kind == "keyword" else "nastran"
+        return Model(points=self.points.copy(), cells=blocks,
+                     cell_data={"element_id": element_ids} if blocks else {},
+                     point_sets=point_sets, node_ids=self.node_ids.copy(),
+                     source=self.path, file_format=fmt)
+
+
+def new_ids(node_ids: NDArray[np.integer], perm: NDArray[np.integer]) -> dict[int, int]:
+    """The new id of every old node id for a renumbering ``perm`` (``perm[new] = old``).
+
+    The deck's id set is kept and its assignment permuted: the node at new
+    position ``k`` receives the ``k``-th smallest original id (so ids
+    ``1..n`` give "new id = 1-based new position").
+
+    Parameters
+    ----------
+    node_ids
+        Original ids of the nodes, in the order of the model's node indices.
+    perm
+        New order of the node indices.
+
+    Returns
+    -------
+    dict
+        old id -> new id.
+    """
+    ids = np.asarray(node_ids, dtype=np.int64)
+    perm = check_permutation(perm, ids.size)
+    sorted_ids = np.sort(ids)
+    new_of_index = np.empty_like(ids)
+    new_of_index[perm] = sorted_ids
+    return dict(zip(ids.tolist(), new_of_index.tolist()))

@@ -1,0 +1,171 @@
+"""Renumber a deck in place: rewrite its node ids, leave every other byte as it was."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..errors import InputError
+from .deck import Deck, NodeRef
+
+#: Node ids per line when a range-defined node set is written out in full.
+IDS_PER_LINE = 16
+
+
+@dataclass(frozen=True)
+class DeckRewrite:
+    """A renumbered deck text and what changed in it.
+
+    Attributes
+    ----------
+    text
+        The whole new deck.
+    changed_cards
+        Card or keyword name -> number of lines rewritten.
+    notes
+        Structural changes besides numbers (range sets written out in full).
+    """
+
+    text: str
+    changed_cards: dict[str, int] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+
+
+def renumber_deck(deck: Deck, new_id_of_old_id: Mapping[int, int]) -> DeckRewrite:
+    """Rewrite every node id of a deck through a map, in place in the original text.
+
+    Nodes, element connectivity, node sets, boundary conditions, loads and
+    constraints that name nodes get their new ids; any other line is kept
+    byte for byte.  Fixed-width bulk fields keep their width and their left
+    or right justification.  A node set written as an id range is written
+    out as an explicit list (a range no longer describes it).
+
+    Parameters
+    ----------
+    deck
+        A deck from :func:`bandwise.decks.read_deck`.
+    new_id_of_old_id
+        old id -> new id for every node of the deck, a one-to-one map (see
+        :func:`bandwise.decks.new_ids`).
+
+    Returns
+    -------
+    DeckRewrite
+
+    Raises
+    ------
+    InputError
+        The map is not one-to-one over the deck's nodes; a new id does not fit
+        its fixed-width field; the deck has cards that may name nodes which
+        bandwise does not rewrite, or include files (renumbering them in place
+        is not possible).
+    """
+    _check_rewritable(deck)
+    mapping = _checked_map(deck, new_id_of_old_id)
+    lines = list(deck.lines)
+    changed: dict[int, str] = {}
+    by_line: dict[int, list[NodeRef]] = {}
+    for ref in deck.refs:
+        by_line.setdefault(ref.line, []).append(ref)
+    for k, refs in by_line.items():
+        text = lines[k]
+        for ref in sorted(refs, key=lambda r: r.start, reverse=True):
+            text = _replaced(text, ref, mapping[ref.node_id], deck.path)
+        if text != lines[k]:
+            lines[k] = text
+            changed[k] = refs[0].card
+    notes = []
+    for rw in deck.list_rewrites:
+        ending = _ending(lines[rw.lines[0]]) or "\n"
+        new = sorted(mapping[int(i)] for i in rw.node_ids)
+        render = _keyword_list if rw.kind == "keyword" else _bulk_list
+        for j, k in enumerate(rw.lines):
+            lines[k] = render(rw.head, new, ending) if j == 0 else ""
+        changed[rw.lines[0]] = rw.card
+        notes.append(f"{rw.card} at line {rw.lines[0] + 1} gave its nodes as an id range; "
+                     f"written out as a list of {len(new)} ids")
+    counts: dict[str, int] = {}
+    for card in changed.values():
+        counts[card] = counts.get(card, 0) + 1
+    return DeckRewrite("".join(lines), dict(sorted(counts.items())), notes)
+
+
+def _check_rewritable(deck: Deck) -> None:
+    if deck.unhandled:
+        listed = ", ".join(f"{name} ({count})" for name, count in sorted(deck.unhandled.items()))
+        raise InputError(f"{deck.path}: cannot renumber in place: these cards may name nodes "
+                         f"and bandwise does not rewrite them: {listed}")
+    if deck.includes:
+        raise InputError(f"{deck.path}: cannot renumber in place: the deck includes "
+                         f"{', '.join(deck.includes)}; merge the included files into one deck first")
+
+
+def _checked_map(deck: Deck, new_id_of_old_id: Mapping[int, int]) -> dict[int, int]:
+    ids = deck.node_ids.tolist()
+    try:
+        new = [int(new_id_of_old_id[i]) for i in ids]
+    except KeyError as exc:
+        raise InputError(f"{deck.path}: the id map gives no new id for node {exc.args[0]}") from None
+    if len(set(new)) != len(new):
+        raise InputError(f"{deck.path}: the id map gives two nodes the same new id")
+    if new and min(new) < 1:
+        raise InputError(f"{deck.path}: node ids must be positive, the map gives {min(new)}")
+    return dict(zip(ids, new))
+
+
+def _keyword_list(head: tuple[str, ...], ids: list[int], ending: str) -> str:
+    """A keyword line and its data lines listing ``ids``, ``IDS_PER_LINE`` to a line."""
+    chunks = [ids[i:i + IDS_PER_LINE] for i in range(0, len(ids), IDS_PER_LINE)]
+    return head[0] + ending + "".join(", ".join(map(str, c)) + ending for c in chunks)
+
+
+def _bulk_list(head: tuple[str, ...], ids: list[int], ending: str) -> str:
+    """A small-field card: ``head`` fields, then ``ids``, continued on ``+`` lines."""
+    fields = [*head[1:], *map(str, ids)]
+    first, rest = fields[:8], fields[8:]
+    for value in fields:
+        if len(value) > 8:
+            raise InputError(f"{value!r} does not fit a small field")
+    text = head[0].ljust(8) + "".join(f.ljust(8) for f in first).rstrip() + ending
+    for i in range(0, len(rest), 8):
+        text += "+".ljust(8) + "".join(f.ljust(8) for f in rest[i:i + 8]).rstrip() + ending
+    return text
+
+
+def _ending(line: str) -> str:
+    return line[len(line.rstrip("\r\n")):]
+
+
+def _replaced(text: str, ref: NodeRef, new_id: int, path: str) -> str:
+    """``text`` with the number of ``ref`` replaced by ``new_id``."""
+    old = text[ref.start:ref.end]
+    digits = str(new_id)
+    if ref.width:
+        if len(digits) > ref.width:
+            raise InputError(f"{path}: line {ref.line + 1} ({ref.card}): node id {new_id} does "
+                             f"not fit a {ref.width}-character field")
+        # keep the justification (and any offset of a left-justified number)
+        lead = len(old) - len(old.lstrip())
+        trail = len(old) - len(old.rstrip())
+        if lead and not trail and len(old) == ref.width:
+            field_text = digits.rjust(len(old))
+        else:
+            field_text = " " * lead + digits
+            if len(field_text) > ref.width:
+                field_text = digits
+            field_text = field_text.ljust(len(old))
+        return text[:ref.start] + field_text + text[ref.end:]
+    if len(digits) < len(old) and ref.start > 0 and text[ref.start - 1] != ".":
+        digits = digits.rjust(len(old))
+    return text[:ref.start] + digits + text[ref.end:]
+
+
+def changed_lines(before: str, after: str) -> list[int]:
+    """0-based indices of lines that differ between two texts of the same line count."""
+    a = before.splitlines(keepends=True)
+    b = after.splitlines(keepends=True)
+    if len(a) != len(b):
+        raise ValueError("the texts have different numbers of lines")
+    return [int(k) for k in np.flatnonzero([x != y for x, y in zip(a, b)])]
