@@ -1,0 +1,381 @@
+"""The report: valid figures, numbers that match the JSON, atomic output, clear errors.
+
+References used by the checks below:
+- PNG signature: W3C, "Portable Network Graphics (PNG) Specification (Second
+  Edition)", 2003, section 5.2 (the 8-byte signature).
+- Euler's polyhedron formula V - E + F = 2 for the surface of a solid without
+  holes (L. Euler, "Elementa doctrinae solidorum", 1758).
+- Bandwidth of a dense matrix: ``scipy.linalg.bandwidth`` (reference library).
+- Connected parts: ``networkx.number_connected_components`` (reference library).
+- Binned counts: ``numpy.histogram2d`` (reference library).
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import os
+from html.parser import HTMLParser
+from pathlib import Path
+
+import networkx as nx
+import numpy as np
+import pytest
+import scipy.linalg
+import scipy.sparse as sp
+from scipy.sparse.csgraph import reverse_cuthill_mckee
+
+from bandwise.caution import CAUTION
+from bandwise.checks.findings import Finding
+from bandwise.dofs import dof_layout
+from bandwise.errors import MeshWriteError
+from bandwise.generate import hex_grid, quad_grid, scrambled, tet_grid
+from bandwise.graph import node_graph
+from bandwise.model import CellBlock, Model
+from bandwise.report import ReportInputs, report_document, verdict, write_report
+from bandwise.report import build as report_build
+from bandwise.report.meshview import mesh_view, node_parts, outer_faces
+from bandwise.report.sampling import envelope, pattern_image
+from bandwise.summary import summarise
+
+ROOT = Path(__file__).resolve().parent.parent
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification, 2003, section 5.2
+
+
+class PageParser(HTMLParser):
+    """Collects images, section ids, the exact values of <data> and the text of the page."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.images: list[dict[str, str]] = []
+        self.sections: list[str] = []
+        self.values: list[str] = []
+        self.scripts = 0
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "img":
+            self.images.append(a)
+        elif tag == "section" and "id" in a:
+            self.sections.append(a["id"])
+        elif tag == "data":
+            self.values.append(a["value"])
+        elif tag in ("script", "link", "iframe", "object"):
+            self.scripts += 1
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def parse(page: str) -> PageParser:
+    p = PageParser()
+    p.feed(page)
+    return p
+
+
+def bracket_inputs(findings=None, renumber=True, seed=3) -> ReportInputs:
+    """A small bracket-like block, badly numbered, with an RCM stand-in ordering."""
+    model = scrambled(tet_grid(9, 6, 4, h=5.0), seed=seed)
+    model.source, model.file_format = "bracket_block.msh", "gmsh"
+    graph = node_graph(model)
+    layout = dof_layout(model)
+    summary = summarise(model, layout, graph)
+    perm = reverse_cuthill_mckee(graph.to_scipy(), symmetric_mode=True) if renumber else None
+    return ReportInputs(model, graph, layout, summary, findings=findings, perm=perm,
+                        method="rcm (scipy stand-in)" if renumber else None)
+
+
+@pytest.fixture(scope="module")
+def written(tmp_path_factory):
+    orphan = Finding("nodes.orphan", "warning", 2, "2 nodes belong to no element.",
+                     node_ids=(1, 7), node_id_kind="1-based node position")
+    out = tmp_path_factory.mktemp("rep") / "report"
+    files = write_report(out, bracket_inputs(findings=[orphan]))
+    page = files.html.read_text(encoding="utf-8")
+    doc = json.loads(files.json.read_text(encoding="utf-8"))
+    return files, page, doc
+
+
+def decoded_png(src: str) -> np.ndarray:
+    import base64
+
+    from matplotlib.image import imread
+
+    assert src.startswith("data:image/png;base64,")
+    data = base64.b64decode(src.split(",", 1)[1], validate=True)
+    assert data[:8] == PNG_SIGNATURE
+    return imread(io.BytesIO(data), format="png")
+
+
+# --------------------------------------------------------------------------- the page
+
+
+def test_every_figure_is_an_embedded_non_blank_png(written):
+    files, page, doc = written
+    p = parse(page)
+    assert len(p.images) == len(doc["figures"]) == 4
+    for img in p.images:
+        pixels = decoded_png(img["src"])
+        assert pixels.ndim == 3 and min(pixels.shape[:2]) >= 200
+        grey = pixels[..., :3].mean(axis=2)
+        assert grey.std() > 0.05                       # not a blank canvas
+        assert np.mean(grey < 0.9) > 0.01              # something is drawn
+    for path in files.figures:                         # the PNG files beside the page
+        assert path.read_bytes()[:8] == PNG_SIGNATURE
+
+
+def test_page_is_self_contained(written):
+    _, page, _ = written
+    p = parse(page)
+    assert p.scripts == 0
+    assert "http://" not in page and "https://" not in page
+    assert "@media print" in page
+
+
+def _numbers(node, path=()):
+    """Every numeric leaf of the document, except id lists, figures and the time stamp."""
+    skip = {"node_ids", "element_ids", "figures", "created", "bandwise_version"}
+    if isinstance(node, dict):
+        for k, v in node.items():
+            if k not in skip:
+                yield from _numbers(v, path + (k,))
+    elif isinstance(node, list):
+        for k, v in enumerate(node):
+            yield from _numbers(v, path + (k,))
+    elif isinstance(node, (int, float)) and not isinstance(node, bool):
+        yield path, node
+
+
+def test_every_figure_of_the_json_is_in_the_html_tables(written):
+    _, page, doc = written
+    values = set(parse(page).values)
+    found = list(_numbers(doc))
+    assert len(found) > 40
+    missing = [(p, v) for p, v in found if repr(v) not in values]
+    assert missing == []
+
+
+def test_shown_numbers_read_like_the_exact_ones(written):
+    _, page, doc = written
+    cur = doc["mesh"]["current_numbering"]["nodes"]
+    assert f'<data value="{cur["bandwidth"]}">{cur["bandwidth"]:,}</data>' in page
+    assert f'<data value="{cur["profile"]}">{cur["profile"]:,}</data>' in page
+
+
+def test_header_states_caution_version_counts_and_verdict(written):
+    _, page, doc = written
+    text = " ".join(parse(page).text)
+    assert CAUTION in text
+    assert doc["caution"] == CAUTION
+    assert doc["verdict"]["status"] == "ready"          # a warning is no error
+    assert "Verdict: ready" in text
+    assert doc["mesh"]["nodes"] == 9 * 6 * 4
+    assert doc["mesh"]["dofs"]["total"] == 3 * 9 * 6 * 4
+    sections = parse(page).sections
+    assert sections == ["findings", "mesh", "sizing", "not-analysed"]
+
+
+def test_renumbered_figures_match_a_dense_reference(written):
+    # scipy.linalg.bandwidth on the explicitly permuted matrix (reference library)
+    _, _, doc = written
+    inputs = bracket_inputs(findings=[])
+    a = (inputs.graph.to_scipy() + sp.identity(inputs.graph.n)).tocsr()
+    lower, _ = scipy.linalg.bandwidth(a.toarray())
+    p = inputs.perm
+    lower_after, _ = scipy.linalg.bandwidth(a[p][:, p].toarray())
+    ren = doc["renumbering"]["nodes"]
+    assert ren["current"]["bandwidth"] == lower
+    assert ren["renumbered"]["bandwidth"] == lower_after < lower
+    assert doc["renumbering"]["method"] == "rcm (scipy stand-in)"
+
+
+def test_not_analysed_says_what_is_missing(written):
+    _, _, doc = written
+    gaps = " ".join(doc["not_analysed"])
+    assert "Orderings were not compared" in gaps
+    assert "supports" in gaps.lower()
+    assert "Mesh checks" not in gaps                   # the checks were given
+
+
+# --------------------------------------------------------------------------- verdicts
+
+
+def test_verdict_follows_the_findings():
+    error = Finding("mesh.coincident", "error", 4, "4 nodes coincide.", node_ids=(3, 4))
+    note = Finding("mesh.info", "note", 1, "a note")
+    assert verdict(bracket_inputs(findings=[error, note], renumber=False))["status"] == \
+        "problems found"
+    assert verdict(bracket_inputs(findings=[note], renumber=False))["status"] == "ready"
+    assert verdict(bracket_inputs(findings=None, renumber=False))["status"] == "not checked"
+
+
+def test_findings_sorted_errors_first_with_ids_and_marks():
+    note = Finding("parts.info", "note", 1, "one part")
+    error = Finding("nodes.coincident", "error", 2, "2 nodes coincide.", node_ids=(5, 9),
+                    node_id_kind="1-based node position")
+    inputs = bracket_inputs(findings=[note, error], renumber=False)
+    doc = report_document(inputs)
+    assert doc["verdict"]["status"] == "problems found"
+    marks = report_build.finding_marks(inputs)
+    assert marks["coincident"].tolist() == [4, 8]      # labels are 1-based positions
+    from bandwise.report.html import findings_section
+    section = findings_section(doc, "")
+    assert section.index("nodes.coincident") < section.index("parts.info")
+    assert "5, 9" in section
+
+
+# --------------------------------------------------------------------------- reduced data
+
+
+def test_pattern_image_matches_histogram2d():
+    # numpy.histogram2d of the permuted pattern (reference library)
+    model = scrambled(quad_grid(23, 17), seed=5)
+    graph = node_graph(model)
+    perm = reverse_cuthill_mckee(graph.to_scipy(), symmetric_mode=True)
+    a = (graph.to_scipy() + sp.identity(graph.n)).tocsr()[perm][:, perm].tocoo()
+    bins = 50
+    image = pattern_image(graph, perm, bins=bins)
+    edges = np.arange(bins + 1) * graph.n / bins
+    ref, _, _ = np.histogram2d(a.row, a.col, bins=[edges, edges])
+    assert np.array_equal(image.counts, ref.astype(np.int64))
+    assert image.nnz == a.nnz == image.counts.sum()
+
+
+def test_small_pattern_is_exact():
+    graph = node_graph(quad_grid(4, 3))
+    image = pattern_image(graph)
+    dense = (graph.to_scipy() + sp.identity(graph.n)).toarray()
+    assert np.array_equal(image.counts, dense.astype(np.int64))
+
+
+def test_envelope_keeps_every_peak():
+    rng = np.random.default_rng(0)
+    y = rng.integers(0, 1000, size=123_457)
+    env = envelope(y, max_points=500)
+    assert env.start.size <= 500
+    assert env.upper.max() == y.max() and env.lower.min() == y.min()
+    k = 17
+    stop = env.start[k + 1]
+    assert env.upper[k] == y[env.start[k]:stop].max()
+    assert env.lower[k] == y[env.start[k]:stop].min()
+
+
+@pytest.mark.parametrize("shape", [(4, 3, 5), (6, 2, 3)])
+def test_outer_faces_of_a_box(shape):
+    nx_, ny, nz = shape
+    quads = 2 * ((nx_ - 1) * (ny - 1) + (ny - 1) * (nz - 1) + (nx_ - 1) * (nz - 1))
+    assert len(outer_faces(hex_grid(*shape))) == quads
+    tris = outer_faces(tet_grid(*shape))
+    assert len(tris) == 2 * quads                    # each outer square split in two
+    # Euler (1758): V - E + F = 2 for the closed surface of a box
+    faces = tris[:, :3]
+    edges = np.unique(np.sort(np.concatenate([faces[:, [0, 1]], faces[:, [1, 2]],
+                                              faces[:, [2, 0]]]), axis=1), axis=0)
+    assert np.unique(faces).size - len(edges) + len(faces) == 2
+
+
+def test_parts_and_orphans_match_networkx():
+    a, b = quad_grid(4, 4), quad_grid(3, 3)
+    points = np.concatenate([a.points, b.points + [10.0, 0.0, 0.0], [[50.0, 50.0, 0.0]]])
+    cells = [CellBlock("quad", np.concatenate([a.cells[0].data,
+                                               b.cells[0].data + a.n_nodes]))]
+    model = Model(points=points, cells=cells)
+    graph = node_graph(model)
+    part, n_parts = node_parts(graph)
+    g = nx.from_scipy_sparse_array(graph.to_scipy())
+    assert n_parts == nx.number_connected_components(g) - 1     # minus the orphan
+    assert part[-1] == 0 and set(part[:-1]) == {1, 2}
+    view = mesh_view(model, graph)
+    assert view.n_parts == 2 and view.facets_total == 9 + 4
+
+
+def test_big_mesh_is_subsampled_and_small():
+    model = tet_grid(30, 30, 25)                                  # 22,500 nodes
+    graph = node_graph(model)
+    view = mesh_view(model, graph, max_facets=5000)
+    assert view.facets_total > 5000 and len(view.facets) == 5000 and view.is_subsampled
+
+
+# --------------------------------------------------------------------------- atomic output
+
+
+def test_missing_parent_folder_is_an_error_and_leaves_nothing(tmp_path):
+    out = tmp_path / "no" / "such" / "report"
+    with pytest.raises(MeshWriteError, match="does not exist"):
+        write_report(out, bracket_inputs(renumber=False))
+    assert not (tmp_path / "no").exists()
+
+
+def test_a_file_in_the_way_is_an_error(tmp_path):
+    out = tmp_path / "report"
+    out.write_text("keep me")
+    with pytest.raises(MeshWriteError, match="not a folder"):
+        write_report(out, bracket_inputs(renumber=False))
+    assert out.read_text() == "keep me"
+
+
+def test_failure_while_drawing_leaves_no_partial_output(tmp_path, monkeypatch):
+    old = tmp_path / "report"
+    old.mkdir()
+    (old / "report.html").write_text("old page")
+
+    def broken(inputs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(report_build, "curve_figures", broken)
+    with pytest.raises(MeshWriteError, match="No space left"):
+        write_report(old, bracket_inputs(renumber=False))
+    assert (old / "report.html").read_text() == "old page"
+    assert sorted(os.listdir(old)) == ["report.html"]
+    assert sorted(os.listdir(tmp_path)) == ["report"]            # no temporary folder left
+    with pytest.raises(MeshWriteError):
+        write_report(tmp_path / "fresh", bracket_inputs(renumber=False))
+    assert sorted(os.listdir(tmp_path)) == ["report"]
+
+
+def test_existing_report_folder_is_replaced_whole(tmp_path):
+    out = tmp_path / "report"
+    write_report(out, bracket_inputs(renumber=False))
+    files = write_report(out, bracket_inputs(renumber=True))
+    doc = json.loads(files.json.read_text())
+    assert doc["renumbering"] is not None
+    assert sorted(p.name for p in out.iterdir()) == sorted(
+        ["mesh.png", "pattern.png", "skyline.png", "wavefront.png", "report.json",
+         "report.html"])
+    assert sorted(os.listdir(tmp_path)) == ["report"]
+
+
+# --------------------------------------------------------------------------- command line
+
+
+def test_cli_report_of_the_demo_bracket(runner, cli_app, tmp_path):
+    out = tmp_path / "bracket-report"
+    mesh = ROOT / "meshes" / "bracket.msh"
+    before = mesh.read_bytes()
+    result = runner.invoke(cli_app, ["report", str(mesh), "--out", str(out)])
+    assert result.exit_code in (0, 1), result.stderr
+    assert (out / "report.html").is_file() and (out / "report.json").is_file()
+    doc = json.loads((out / "report.json").read_text())
+    assert doc["mesh"]["nodes"] == 1305
+    assert "report.html" in result.stdout and CAUTION in result.stdout
+    assert mesh.read_bytes() == before                            # the input is read-only
+
+
+def test_cli_unreadable_mesh_exit_2_nothing_written(runner, cli_app, tmp_path):
+    bad = tmp_path / "broken.msh"
+    bad.write_text("$MeshFormat\nthis is not gmsh\n")
+    out = tmp_path / "rep"
+    result = runner.invoke(cli_app, ["report", str(bad), "--out", str(out)])
+    assert result.exit_code == 2
+    assert result.stderr.count("\n") == 1 and "Traceback" not in result.stderr
+    assert sorted(os.listdir(tmp_path)) == ["broken.msh"]
+
+
+def test_cli_uncreatable_folder_exit_2(runner, cli_app, tmp_path):
+    mesh = ROOT / "meshes" / "gusset.vtu"
+    out = tmp_path / "missing" / "rep"
+    result = runner.invoke(cli_app, ["report", str(mesh), "--out", str(out)])
+    assert result.exit_code == 2
+    assert result.stderr.startswith("bandwise: error:") and "does not exist" in result.stderr
+    assert os.listdir(tmp_path) == []
