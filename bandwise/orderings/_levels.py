@@ -52,6 +52,25 @@ def _sort_by_degree(order, lo, hi, deg):  # pragma: no cover - compiled
 
 
 @numba.njit(cache=True, nogil=True)
+def _nodes_by_degree(deg):  # pragma: no cover - compiled
+    """All nodes in increasing degree, ties in index order (a counting sort)."""
+    n = deg.size
+    top = 0
+    for v in range(n):
+        top = max(top, deg[v])
+    slot = np.zeros(top + 2, dtype=np.int64)
+    for v in range(n):
+        slot[deg[v] + 1] += 1
+    for d in range(top + 1):
+        slot[d + 1] += slot[d]
+    out = np.empty(n, dtype=np.int64)
+    for v in range(n):
+        out[slot[deg[v]]] = v
+        slot[deg[v]] += 1
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
 def _sweep(indptr, indices, deg, root, seen, stamp, order, start, level_ptr,
            by_degree, max_width):  # pragma: no cover - compiled
     """Breadth-first search from ``root``: the rooted level structure of its part.
@@ -166,12 +185,12 @@ def _shrunk_last_level(order, level_ptr, depth, deg, cand):  # pragma: no cover 
 
 
 @numba.njit(cache=True, nogil=True)
-def _pseudo_diameter(indptr, indices, deg, first, seen, stamp, order, start, level_ptr,
+def _pseudo_diameter(indptr, indices, deg, low, seen, stamp, order, start, level_ptr,
                      cand):  # pragma: no cover - compiled
-    """Ends ``(s, e)`` of a pseudo-diameter of the part containing ``first``.
+    """Ends ``(s, e)`` of a pseudo-diameter of the part containing ``low``.
 
     Gibbs-Poole-Stockmeyer step I with Sloan's (1989) refinements: start at
-    a node of minimum degree; build its level structure; try the last-level
+    ``low``, a node of minimum degree of its part; build its level structure; try the last-level
     candidates (:func:`_shrunk_last_level`) in increasing degree, abandoning
     any search as soon as a level is as wide as the narrowest complete one
     found so far; a deeper structure makes its root the new start; otherwise
@@ -181,16 +200,10 @@ def _pseudo_diameter(indptr, indices, deg, first, seen, stamp, order, start, lev
     from the end they need.  Returns
     ``(s, e, size, depth, stamp)``.
     """
+    s = low
     stamp += 1
-    size, depth, _, _ = _sweep(indptr, indices, deg, first, seen, stamp, order, start,
-                            level_ptr, False, NO_CAP)
-    s = first
-    for a in range(start, start + size):
-        if deg[order[a]] < deg[s]:
-            s = order[a]
-    stamp += 1
-    _, depth, _, _ = _sweep(indptr, indices, deg, s, seen, stamp, order, start,
-                         level_ptr, False, NO_CAP)
+    size, depth, _, _ = _sweep(indptr, indices, deg, s, seen, stamp, order, start,
+                               level_ptr, False, NO_CAP)
     while True:
         k = _shrunk_last_level(order, level_ptr, depth, deg, cand)
         best_width = NO_CAP
@@ -233,8 +246,8 @@ def pseudo_diameter(graph: NodeGraph, nodes_of_part: NDArray[np.integer]) -> tup
     graph
         The node graph.
     nodes_of_part
-        The nodes of one connected part (any order; only the first one is
-        used to find the part, the search then covers the whole part).
+        The nodes of one connected part, any order; the search starts at the
+        one of least degree (the first such) and covers its whole part.
 
     Returns
     -------
@@ -264,14 +277,15 @@ def pseudo_diameter(graph: NodeGraph, nodes_of_part: NDArray[np.integer]) -> tup
     (1976) 236-250.  S. W. Sloan, Int. J. Numer. Meth. Eng. 28 (1989)
     2651-2679.
     """
-    nodes = np.asarray(nodes_of_part)
+    nodes = np.asarray(nodes_of_part).ravel()
     if nodes.size == 0:
         raise InputError("a part needs at least one node")
-    first = int(nodes.flat[0])
-    if not 0 <= first < graph.n:
-        raise InputError(f"node {first} is not in the graph ({graph.n} nodes)")
+    if not np.issubdtype(nodes.dtype, np.integer) or nodes.min() < 0 or nodes.max() >= graph.n:
+        raise InputError(f"the part's nodes must be node numbers of the graph (0..{graph.n - 1})")
+    deg = graph.degrees()
+    low = int(nodes[np.argmin(deg[nodes])])
     seen, order, level_ptr, cand = _work_arrays(graph.n)
-    s, e, _, _, _ = _pseudo_diameter(graph.indptr, graph.indices, graph.degrees(), first,
+    s, e, _, _, _ = _pseudo_diameter(graph.indptr, graph.indices, deg, low,
                                      seen, 0, order, 0, level_ptr, cand)
     return int(s), int(e)
 

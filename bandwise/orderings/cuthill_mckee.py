@@ -29,7 +29,7 @@ from numpy.typing import NDArray
 
 from ..graph import NodeGraph
 from . import register
-from ._levels import NO_CAP, _george_liu, _shrunk_last_level, _sweep
+from ._levels import NO_CAP, _george_liu, _nodes_by_degree, _shrunk_last_level, _sweep
 
 #: Extra start nodes tried on a part of ``size`` nodes: ``min(16, 50_000 // size)``,
 #: so small parts get a wider search and a large mesh costs no more than the
@@ -81,25 +81,6 @@ def _cuthill_mckee_part(indptr, indices, deg, low, seen, stamp, order, start,
         _sweep(indptr, indices, deg, best_root, seen, stamp, order, start, level_ptr,
                True, NO_CAP)
     return size, stamp
-
-
-@numba.njit(cache=True, nogil=True)
-def _nodes_by_degree(deg):  # pragma: no cover - compiled
-    """All nodes in increasing degree, ties in index order (a counting sort)."""
-    n = deg.size
-    top = 0
-    for v in range(n):
-        top = max(top, deg[v])
-    slot = np.zeros(top + 2, dtype=np.int64)
-    for v in range(n):
-        slot[deg[v] + 1] += 1
-    for d in range(top + 1):
-        slot[d + 1] += slot[d]
-    out = np.empty(n, dtype=np.int64)
-    for v in range(n):
-        out[slot[deg[v]]] = v
-        slot[deg[v]] += 1
-    return out
 
 
 @numba.njit(cache=True, nogil=True)
