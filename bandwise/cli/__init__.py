@@ -105,7 +105,7 @@ def _root(
 
 
 #: Command modules; each registers its command on :data:`app` when imported.
-COMMAND_MODULES = ("check_cmd", "renumber_cmd", "report_cmd")
+COMMAND_MODULES = ("check_cmd", "renumber_cmd", "report_cmd", "merge_cmd")
 
 
 def load_commands() -> None:

@@ -8,12 +8,40 @@ from typing import Annotated
 import typer
 
 from .. import __version__
+from ..checks import CheckOptions, run_checks
+from ..checks.verdict import (
+    FAIL_ON,
+    check_fail_on,
+    failing,
+    findings_text,
+    summary_line,
+    verdict,
+)
 from ..dofs import dof_layout
+from ..graph import node_graph
 from ..meshio_io import read_model
 from ..progress import StderrProgress
 from ..summary import MeshSummary, summarise
 from ..tables import human_bytes, human_count, render_table
-from . import CAUTION, DofsOpt, FormatOpt, JsonOpt, PhysicsOpt, app, emit_json, guarded
+from . import (
+    CAUTION,
+    EXIT_FINDINGS,
+    DofsOpt,
+    FormatOpt,
+    JsonOpt,
+    PhysicsOpt,
+    app,
+    emit_json,
+    guarded,
+)
+
+FailOnOpt = Annotated[str, typer.Option(
+    "--fail-on", help=f"Lowest severity that makes the exit code 1: {' | '.join(FAIL_ON)}.")]
+ToleranceOpt = Annotated[float | None, typer.Option(
+    "--tolerance", help="Absolute distance under which distinct nodes count as coincident "
+                        "(default: a fraction of the shortest element edge).")]
+RelToleranceOpt = Annotated[float, typer.Option(
+    "--relative-tolerance", help="That fraction of the shortest element edge.")]
 
 
 def summary_text(s: MeshSummary) -> str:
@@ -62,22 +90,45 @@ def check(
     dofs_per_node: DofsOpt = None,
     physics: PhysicsOpt = None,
     as_json: JsonOpt = False,
+    fail_on: FailOnOpt = "error",
+    tolerance: ToleranceOpt = None,
+    relative_tolerance: RelToleranceOpt = 1e-3,
 ) -> None:
-    """Size up a mesh before a run: parts, orphans, DOFs, bandwidth, profile, wavefront, memory."""
+    """Size up and check meshes before a run: parts, orphans, coincident nodes, joints, elements.
+
+    Also counts DOFs and measures bandwidth, profile, wavefront and memory.
+    Exit code 1 when a finding at or above --fail-on is found.
+    """
+    check_fail_on(fail_on)
+    options = CheckOptions(tolerance=tolerance, relative_tolerance=relative_tolerance)
     progress = StderrProgress()
     results = []
+    all_findings = []
     for path in files:
         model = read_model(path, file_format)
         layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
-        results.append(summarise(model, layout, progress=progress))
+        graph = node_graph(model)
+        results.append(summarise(model, layout, graph=graph, progress=progress))
+        all_findings.append(run_checks(model, graph, options, progress=progress))
+    gate_failed = any(failing(f, fail_on) for f in all_findings)
     if as_json:
-        docs = [r.to_dict() for r in results]
+        docs = [{**r.to_dict(), "verdict": verdict(f, fail_on),
+                 "findings": [x.to_dict() for x in f]}
+                for r, f in zip(results, all_findings)]
         emit_json({"bandwise_version": __version__, "caution": CAUTION,
-                   "meshes": docs})
-        return
-    for k, s in enumerate(results):
-        if k:
+                   "fail_on": fail_on, "meshes": docs})
+    else:
+        if len(results) > 1:
+            for r, f in zip(results, all_findings):
+                typer.echo(summary_line(r.source, f, fail_on))
             typer.echo("")
-        typer.echo(summary_text(s))
-    typer.echo("")
-    typer.echo(CAUTION)
+        for k, (s, f) in enumerate(zip(results, all_findings)):
+            if k:
+                typer.echo("")
+            typer.echo(summary_text(s))
+            typer.echo("")
+            typer.echo(findings_text(f))
+        typer.echo("")
+        typer.echo(CAUTION)
+    if gate_failed:
+        raise typer.Exit(EXIT_FINDINGS)
