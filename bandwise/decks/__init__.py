@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 from numpy.typing import NDArray
 
-from ..dofs import DOF_NAMES
+from ..dofs import DOF_NAMES, DofLayout, dof_mask
 from ..errors import MeshReadError
 from .bulk_deck import parse_bulk_deck, read_bulk_deck
 from .deck import Deck, DeckElements, NodeRef, new_ids
@@ -38,7 +38,7 @@ DECK_FORMATS = {"abaqus": "keyword", "nastran": "bulk"}
 
 __all__ = [
     "DECK_EXTENSIONS", "Deck", "DeckElements", "DeckRewrite", "NodeRef", "deck_kind",
-    "deck_links", "deck_supports", "new_ids", "parse_bulk_deck", "parse_keyword_deck",
+    "deck_links", "deck_support_set", "deck_supports", "new_ids", "parse_bulk_deck", "parse_keyword_deck",
     "read_deck", "renumber_deck",
 ]
 
@@ -111,3 +111,24 @@ def deck_links(deck: Deck) -> list[NDArray[np.int64]]:
         if nodes.size > 1:
             by_width.setdefault(int(nodes.size), []).append(nodes)
     return [np.vstack(group) for _, group in sorted(by_width.items())]
+
+
+def deck_support_set(deck: Deck, layout: DofLayout):  # -> bandwise.supports.SupportSet
+    """The deck's supports as a :class:`bandwise.supports.SupportSet` for the rigid-body analysis.
+
+    A card may hold DOFs a node does not carry (rotations on a solid node,
+    held to quiet a solver): only the DOFs the node carries count.
+    """
+    from ..supports import AppliedSupport, Support, SupportSet
+
+    fixed = np.zeros(deck.n_nodes, dtype=np.int64)
+    held = deck_supports(deck)
+    if not held:
+        return SupportSet(fixed, ())
+    nodes = np.fromiter(held, dtype=np.int64, count=len(held))
+    wanted = np.array([dof_mask(held[k]) for k in held], dtype=np.int64)
+    fixed[nodes] = wanted & layout.masks[nodes]
+    count = int(sum(int(m).bit_count() for m in fixed[nodes]))
+    support = Support("node", tuple(int(i) for i in deck.node_ids[nodes]), "as in the deck",
+                      origin=f"{deck.path}: boundary-condition cards")
+    return SupportSet(fixed, (AppliedSupport(support, np.sort(nodes), count),))
