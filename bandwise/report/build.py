@@ -101,26 +101,24 @@ def finding_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
     return {k: np.unique(np.concatenate(v)) for k, v in marks.items()}
 
 
-def mode_arrows(inputs: ReportInputs) -> tuple[NDArray[np.int64], NDArray[np.float64]] | None:
-    """Nodes and 3-component vectors of the first free mode, if the modes carry them."""
+def mode_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
+    """The nodes each free zero-energy mode moves most (labels from the analysis)."""
     modes = inputs.modes
     if modes is None or not free_mode_count(modes):
-        return None
-    arrows = getattr(modes, "arrows", None)
-    if callable(arrows):
-        nodes, vectors = arrows()
-        return np.asarray(nodes, dtype=np.int64), np.asarray(vectors, dtype=np.float64)
-    return None
+        return {}
+    labels = [label for m in modes.modes() for label in m.moving_nodes]
+    nodes = node_indices(inputs.model, labels)
+    return {"free mode": np.unique(nodes)} if nodes.size else {}
 
 
 def mesh_figure(inputs: ReportInputs) -> Figure:
     """The mesh coloured by part, findings marked, a free mode drawn as arrows."""
     view = mesh_view(inputs.model, inputs.graph)
-    ax = fg.mesh_axes(view, finding_marks(inputs), mode_arrows(inputs))
+    ax = fg.mesh_axes(view, {**finding_marks(inputs), **mode_marks(inputs)})
     shown = (f"{len(view.facets):,} of {view.facets_total:,} facets drawn (evenly spread "
              "subset)" if view.is_subsampled else "every facet drawn")
-    caption = (f"The mesh, {view.n_parts} connected part(s) coloured; marked nodes from the "
-               f"findings; {shown}.")
+    caption = (f"The mesh, {view.n_parts} connected part(s) coloured; marked: the nodes "
+               f"the findings name and those free modes move most; {shown}.")
     if view.axis_names[0].startswith("view"):
         caption += " Oblique view; outer faces of solids only."
     return Figure("mesh.png", "findings", caption, fg.png_bytes(ax))
@@ -133,7 +131,8 @@ def pattern_figure(inputs: ReportInputs) -> Figure:
     from .style import styled
 
     before = pattern_image(inputs.graph)
-    after = None if inputs.perm is None else pattern_image(inputs.graph, inputs.perm)
+    perm = inputs.chosen_perm
+    after = None if perm is None else pattern_image(inputs.graph, perm)
     vmax = max(int(before.counts.max()), int(after.counts.max()) if after else 1)
 
     @styled
@@ -142,7 +141,7 @@ def pattern_figure(inputs: ReportInputs) -> Figure:
         axes = fig.subplots(1, 2 if after else 1, squeeze=False)[0]
         fg.pattern_axes(before, "Current numbering", ax=axes[0], vmax=vmax)
         if after is not None:
-            fg.pattern_axes(after, f"Renumbered ({inputs.method or 'given ordering'})",
+            fg.pattern_axes(after, f"Renumbered ({inputs.chosen_method})",
                             ax=axes[1], vmax=vmax)
         return fig
 
@@ -156,8 +155,8 @@ def pattern_figure(inputs: ReportInputs) -> Figure:
 
 def curve_figures(inputs: ReportInputs) -> list[Figure]:
     """Skyline column heights and wavefront along the elimination, before and after."""
-    g, p, d = inputs.graph, inputs.perm, inputs.layout
-    label = ("current numbering", f"renumbered ({inputs.method or 'given ordering'})")
+    g, p, d = inputs.graph, inputs.chosen_perm, inputs.layout
+    label = ("current numbering", f"renumbered ({inputs.chosen_method})")
     sky = fg.skyline_axes(column_heights(g, None, d),
                           None if p is None else column_heights(g, p, d), labels=label)
     wave = fg.wavefront_axes(wavefront_profile(g, None, d),
@@ -173,28 +172,25 @@ def curve_figures(inputs: ReportInputs) -> list[Figure]:
 
 
 def comparison_figure(inputs: ReportInputs) -> Figure | None:
-    """Bar chart of the orderings compared, relative to the current numbering."""
+    """Bar chart of the orderings compared, DOF level, relative to the original numbering."""
     comp = inputs.comparison
-    rows = getattr(comp, "rows", None)
-    if comp is None or not rows:
+    if comp is None:
         return None
-    current = inputs.summary.dof_level.to_dict()
-    methods, ratios = [], {}
-    names = ("bandwidth", "profile", "max_wavefront", "rms_wavefront")
-    for row in rows:
-        data = row.to_dict() if hasattr(row, "to_dict") else dict(row)
-        figs = data.get("dofs", data) if isinstance(data.get("dofs"), dict) else data
-        methods.append(str(data.get("method", data.get("name", "?"))))
-        for key in names:
-            base = current.get(key) or 0
-            value = figs.get(key)
-            ratios.setdefault(key.replace("_", " "), []).append(
-                float(value) / base if base and isinstance(value, (int, float)) else np.nan)
-    best = getattr(comp, "best", None)
-    best = getattr(best, "method", best)
-    ax = fg.comparison_axes(methods, ratios, chosen=None if best is None else str(best))
+    base = comp.original
+    rows = [r for r in comp.rows if r.ok and r is not base and r.dofs is not None]
+    if not rows or base.dofs is None:
+        return None
+    ratios: dict[str, list[float]] = {}
+    for key, label in (("bandwidth", "bandwidth"), ("profile", "profile"),
+                       ("max_wavefront", "max front"), ("rms_wavefront", "RMS front"),
+                       ("envelope_ops", "envelope\nwork")):
+        ref = float(getattr(base.dofs, key))
+        ratios[label] = [float(getattr(r.dofs, key)) / ref if ref else np.nan for r in rows]
+    if base.fill and all(r.fill for r in rows):
+        ratios["Cholesky\nnnz(L)"] = [float(r.fill) / base.fill for r in rows]
+    ax = fg.comparison_axes([r.method for r in rows], ratios, chosen=comp.best.method)
     return Figure("orderings.png", "orderings", "Each ordering's figures divided by those "
-                  "of the current numbering (DOF level; below 1 is better); the kept "
+                  "of the original numbering (DOF level; below 1 is better); the kept "
                   "ordering outlined.", fg.png_bytes(ax))
 
 

@@ -15,7 +15,7 @@ import numpy as np
 
 from .. import __version__
 from ..caution import CAUTION
-from ..metrics import Metrics, metrics
+from ..metrics import INDEX_BYTES, VALUE_BYTES, Metrics, metrics
 from .inputs import ReportInputs
 
 #: The verdict words.
@@ -50,14 +50,8 @@ def _as_dict(obj: Any) -> Any:
 
 
 def free_mode_count(modes: Any) -> int | None:
-    """The number of zero-energy modes a modes result reports, if it says."""
-    if modes is None:
-        return None
-    for name in ("n_modes", "n_free", "count"):
-        value = getattr(modes, name, None)
-        if isinstance(value, (int, np.integer)):
-            return int(value)
-    return None
+    """Zero-energy modes of a :class:`~bandwise.rigid.ZeroEnergyAnalysis` (None if absent)."""
+    return None if modes is None else int(modes.total)
 
 
 def verdict(inputs: ReportInputs) -> dict[str, str]:
@@ -87,7 +81,7 @@ def not_analysed(inputs: ReportInputs) -> list[str]:
     if inputs.findings is None:
         out.append("Mesh checks (orphan and coincident nodes, element quality, weak "
                    "joints) were not run.")
-    if inputs.perm is None:
+    if inputs.chosen_perm is None:
         out.append("No renumbering was applied: the figures describe the current "
                    "numbering only.")
     if inputs.comparison is None:
@@ -112,14 +106,38 @@ def _level_pair(before: Metrics, after: Metrics | None) -> dict[str, Any]:
 
 def renumbering(inputs: ReportInputs) -> dict[str, Any] | None:
     """Figures of the chosen ordering beside those of the current numbering."""
-    if inputs.perm is None:
+    perm = inputs.chosen_perm
+    if perm is None:
         return None
     s = inputs.summary
     return {
-        "method": inputs.method or "given ordering",
-        "nodes": _level_pair(s.node_level, metrics(inputs.graph, inputs.perm)),
-        "dofs": _level_pair(s.dof_level, metrics(inputs.graph, inputs.perm, inputs.layout)),
+        "method": inputs.chosen_method,
+        "nodes": _level_pair(s.node_level, metrics(inputs.graph, perm)),
+        "dofs": _level_pair(s.dof_level, metrics(inputs.graph, perm, inputs.layout)),
     }
+
+
+def cholesky_bytes(nnz: int, n_rows: int) -> int:
+    """Storage of a sparse Cholesky factor in compressed columns (values, row indices,
+    column pointers), 8-byte reals and indices."""
+    return nnz * (VALUE_BYTES + INDEX_BYTES) + (n_rows + 1) * INDEX_BYTES
+
+
+def comparison_data(comparison: Any) -> dict[str, Any]:
+    """The comparison's own JSON, with the sparse Cholesky storage of each candidate."""
+    data = plain(comparison.to_dict())
+    for row in data.get("methods", []):
+        nnz, dofs = row.get("cholesky_nnz"), row.get("dofs")
+        if isinstance(nnz, int) and isinstance(dofs, dict):
+            row["cholesky_bytes"] = cholesky_bytes(nnz, int(dofs["n_rows"]))
+    return data
+
+
+def modes_data(modes: Any) -> dict[str, Any]:
+    """The zero-energy analysis' own JSON, with the holds it suggests."""
+    data = plain(modes.to_dict())
+    data["suggested_holds"] = [plain(h.to_dict()) for h in getattr(modes, "suggested", ())]
+    return data
 
 
 def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None = None
@@ -150,9 +168,9 @@ def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None =
         "findings": (None if inputs.findings is None
                      else [_as_dict(f) for f in inputs.findings]),
         "renumbering": renumbering(inputs),
-        "comparison": None if inputs.comparison is None else _as_dict(inputs.comparison),
+        "comparison": None if inputs.comparison is None else comparison_data(inputs.comparison),
         "supports": supports,
-        "modes": None if inputs.modes is None else _as_dict(inputs.modes),
+        "modes": None if inputs.modes is None else modes_data(inputs.modes),
         "equations": None if inputs.equations is None else _as_dict(inputs.equations),
         "not_analysed": not_analysed(inputs),
         "figures": list(figures or []),

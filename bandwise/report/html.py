@@ -46,6 +46,8 @@ th, td { border-bottom: 1px solid var(--rule); padding: 4px 10px; text-align: le
 th { background: var(--band); font-weight: 600; }
 td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 td.unit { color: var(--muted); font-size: 13px; }
+table.wide { font-size: 12.5px; }
+table.wide th, table.wide td { padding: 3px 6px; }
 .verdict { border: 3px solid var(--ink); padding: 10px 14px; margin: 14px 0;
   font-size: 17px; font-weight: 600; }
 .verdict.ready { border-style: solid; background: #e9f3ec; }
@@ -56,7 +58,7 @@ td.unit { color: var(--muted); font-size: 13px; }
   margin: 10px 0; break-inside: avoid; }
 .finding.error { border-left-color: #8c1d18; border-left-style: double; }
 .finding.warning { border-left-color: #b36b00; }
-.finding.note { border-left-color: #6b7a88; border-left-style: dotted; }
+.finding.note { border-left-color: #9aa6b1; border-left-width: 3px; }
 .tag { display: inline-block; min-width: 70px; font-size: 12px; font-weight: 700;
   letter-spacing: .6px; text-transform: uppercase; }
 .ids { font-family: "DejaVu Sans Mono", Consolas, monospace; font-size: 12.5px;
@@ -126,9 +128,10 @@ def _inline(value: Any, key: str = "") -> str:
 
 
 def table(rows: Iterable[Sequence[Any]], header: Sequence[str] | None = None,
-          keys: Sequence[str] | None = None, row_class: Sequence[str] | None = None) -> str:
+          keys: Sequence[str] | None = None, row_class: Sequence[str] | None = None,
+          css: str = "") -> str:
     """An HTML table; ``keys`` name each column's figure (for units such as bytes)."""
-    out = ["<table>"]
+    out = [f'<table class="{css}">' if css else "<table>"]
     if header:
         out.append("<tr>" + "".join(f"<th>{esc(h)}</th>" for h in header) + "</tr>")
     for k, row in enumerate(rows):
@@ -298,27 +301,51 @@ def sizing_section(doc: Mapping[str, Any], figures_html: str) -> str:
     return "\n".join(out)
 
 
+#: Columns of the comparison table: (label, key, where) with where "dofs", "nodes" or "row".
+COMPARISON_COLUMNS = (
+    ("bandwidth", "bandwidth", "level"), ("profile", "profile", "level"),
+    ("max wavefront", "max_wavefront", "level"), ("RMS wavefront", "rms_wavefront", "level"),
+    ("envelope work", "envelope_ops", "level"), ("banded", "banded_bytes", "level"),
+    ("skyline", "skyline_bytes", "level"),
+)
+
+
+def _comparison_table(methods: Sequence[Mapping[str, Any]], level: str) -> str:
+    header = ["ordering", "kept"] + [c[0] for c in COMPARISON_COLUMNS]
+    keys = ["", ""] + [c[1] for c in COMPARISON_COLUMNS]
+    if level == "dofs":
+        header += ["Cholesky nnz(L)", "sparse Cholesky", "improvement", "time (s)", "note"]
+        keys += ["cholesky_nnz", "cholesky_bytes", "improvement", "seconds", "error"]
+    rows, marks = [], []
+    for m in methods:
+        figs = m.get(level) or {}
+        row = [m.get("method"), "kept" if m.get("chosen") else ""]
+        row += [figs.get(c[1]) for c in COMPARISON_COLUMNS]
+        if level == "dofs":
+            row += [m.get("cholesky_nnz"), m.get("cholesky_bytes"), m.get("improvement"),
+                    m.get("seconds"), m.get("error")]
+        rows.append(row)
+        marks.append("kept" if m.get("chosen") else "")
+    return table(rows, header=header, keys=keys, row_class=marks, css="wide")
+
+
 def comparison_section(doc: Mapping[str, Any], figures_html: str) -> str:
-    """The orderings tried, as a table (the kept one in bold) and a chart."""
+    """The orderings tried, as tables (the kept one in bold) and a chart."""
     comp = doc.get("comparison")
     if comp is None:
         return ""
-    out = ["<section id='orderings'>", "<h2>Orderings compared</h2>"]
-    rows = comp.get("rows") if isinstance(comp, dict) else None
-    best = comp.get("best") if isinstance(comp, dict) else None
-    if isinstance(best, dict):
-        best = best.get("method") or best.get("name")
-    if rows and isinstance(rows, list) and all(isinstance(r, dict) for r in rows):
-        name_key = next((k for k in ("method", "name") if k in rows[0]), None)
-        out.append(records_table(rows, highlight=best, name_key=name_key))
-        rest = {k: v for k, v in comp.items() if k != "rows"}
-        if rest:
-            out.append(facts_table(rest))
-    else:
-        out.append(facts_table(comp if isinstance(comp, dict) else {"result": comp}))
-    out.append(figures_html)
-    out.append("</section>")
-    return "\n".join(out)
+    methods = comp.get("methods", [])
+    rest = {k: v for k, v in comp.items() if k != "methods" and v not in ("", {}, None)}
+    return "\n".join([
+        "<section id='orderings'>", "<h2>Orderings compared</h2>",
+        (f"<p>Objective: <strong>{esc(comp.get('objective', ''))}</strong> at DOF level; "
+        f"kept: <strong>{esc(comp.get('chosen', ''))}</strong>. Improvement = original "
+        "objective / this one (above 1 is better). Sparse Cholesky storage = nnz(L) "
+        "values and row indices plus column pointers, 8 bytes each.</p>"),
+        "<h3>DOF level</h3>", _comparison_table(methods, "dofs"),
+        "<h3>Node level</h3>", _comparison_table(methods, "nodes"),
+        facts_table(rest),
+        figures_html, "</section>"])
 
 
 def supports_section(doc: Mapping[str, Any], figures_html: str) -> str:
@@ -334,14 +361,45 @@ def supports_section(doc: Mapping[str, Any], figures_html: str) -> str:
             out.append(records_table(sup["applied"]))
         out.append(table([["held DOFs", sup["held_dofs"]],
                           ["supported nodes", sup["supported_nodes"]]]))
-    for key, title in (("modes", "Zero-energy modes"), ("equations", "Equations")):
-        value = doc.get(key)
-        if value is None:
-            continue
-        out.append(f"<h3>{title}</h3>")
-        out.append(facts_table(value if isinstance(value, dict) else {key: value}))
+    modes = doc.get("modes")
+    if modes is not None:
+        out.append(modes_html(modes))
+    equations = doc.get("equations")
+    if equations is not None:
+        out.append("<h3>Equations</h3>")
+        out.append(facts_table(equations if isinstance(equations, dict)
+                               else {"equations": equations}))
     out.append(figures_html)
     out.append("</section>")
+    return "\n".join(out)
+
+
+def modes_html(modes: Mapping[str, Any]) -> str:
+    """Zero-energy modes: totals, each part, each mode in words, suggested holds."""
+    out = ["<h3>Zero-energy modes</h3>"]
+    total = modes.get("total", 0)
+    out.append("<p>" + ("No zero-energy mode: the supports hold every part."
+                        if not total else
+                        f"{number(total)} zero-energy mode(s): the stiffness matrix is "
+                        "singular with these supports.") + "</p>")
+    scalars = {k: v for k, v in modes.items()
+               if not isinstance(v, (list, dict)) and k != "total"}
+    out.append(facts_table({"total": total, **scalars}))
+    parts = [{k: v for k, v in p.items() if k != "details"} for p in modes.get("per_part", [])]
+    if parts:
+        out.append(records_table(parts))
+    details = [d for p in modes.get("per_part", []) for d in p.get("details", [])]
+    if details:
+        rows = [[d.get("part"), d.get("kind"), d.get("description"),
+                 ", ".join(str(i) for i in d.get("moving_nodes", []))] for d in details]
+        out.append(table(rows, header=["part", "kind", "what moves",
+                                       f"nodes moving most ({modes.get('node_labels', '')})"]))
+    holds = modes.get("suggested_holds") or []
+    if holds:
+        out.append("<p>Holds that would remove every free mode (suggested, not applied):</p>")
+        out.append(records_table(holds))
+    for note in modes.get("notes", []):
+        out.append(f"<p>{esc(note)}</p>")
     return "\n".join(out)
 
 

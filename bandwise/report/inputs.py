@@ -58,3 +58,19 @@ class ReportInputs:
     modes: Any | None = None
     equations: Any | None = None
     created: dt.datetime = field(default_factory=_now)
+
+    @property
+    def chosen_perm(self) -> NDArray[np.integer] | None:
+        """The ordering shown as "renumbered": ``perm``, else the comparison's best."""
+        if self.perm is not None:
+            return self.perm
+        best = getattr(self.comparison, "best", None)
+        return getattr(best, "perm", None)
+
+    @property
+    def chosen_method(self) -> str:
+        """Name of :attr:`chosen_perm`."""
+        if self.perm is not None:
+            return self.method or "given ordering"
+        best = getattr(self.comparison, "best", None)
+        return str(getattr(best, "method", "given ordering"))

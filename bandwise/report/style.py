@@ -22,6 +22,7 @@ MARKS = {
     "orphan": ("X", "#b0302a"),
     "coincident": ("o", "#111111"),
     "weak joint": ("D", "#e07b00"),
+    "free mode": ("^", "#6a1b9a"),
     "other": ("s", "#555555"),
 }
 #: Hatching of the bar series in the comparison chart.
