@@ -173,6 +173,7 @@ class ZeroEnergyAnalysis:
     suggested: tuple[SuggestedHold, ...]
     notes: tuple[str, ...] = ()
     node_label_word: str = "1-based node position"
+    moment_release: MomentRelease | None = None
 
     @property
     def n_body_modes(self) -> int:
@@ -205,6 +206,8 @@ class ZeroEnergyAnalysis:
             "node_labels": self.node_label_word,
             "per_part": [p.to_dict() for p in self.parts],
             "notes": list(self.notes),
+            "moment_release": None if self.moment_release is None
+            else self.moment_release.to_dict(),
         }
 
     def __repr__(self) -> str:
@@ -645,7 +648,32 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
         notes.append(f"{without} free DOF(s) have no stiffness from any element "
                      "(orphan nodes, or rotations at nodes of solid elements only)")
     suggested = _suggest(ctx, parts_t, null_spaces)
-    return ZeroEnergyAnalysis(space, parts_t, without, suggested, tuple(notes), labels_word)
+    release = moment_release(bodies, layout, labels_arr)
+    return ZeroEnergyAnalysis(space, parts_t, without, suggested, tuple(notes), labels_word,
+                              release)
+
+
+def moment_release(bodies: Bodies, layout: DofLayout,
+                   labels: NDArray[np.int64]) -> MomentRelease | None:
+    """Nodes where frame or shell elements (rotations) meet solid or plane elements (none).
+
+    At such a node only the frame or shell stiffens the rotations: the joint
+    passes forces into the solid but no moment.  None when there is no such node.
+    """
+    n = layout.masks.size
+    rot_pair = (bodies.own[bodies.body] & ROTATIONS) != 0
+    with_rot = np.zeros(n, dtype=bool)
+    without_rot = np.zeros(n, dtype=bool)
+    with_rot[bodies.node[rot_pair]] = True
+    without_rot[bodies.node[~rot_pair]] = True
+    hit = np.flatnonzero(with_rot & without_rot & ((layout.masks & ROTATIONS) != 0))
+    if hit.size == 0:
+        return None
+    first = tuple(int(v) for v in labels[hit[:10]])
+    message = (f"{hit.size} node(s) join frame or shell elements to solid elements, which "
+               "give no rotational stiffness: these joints pass forces but no moment into "
+               f"the solid (first: node {first[0]}); tie the rotations if a rigid joint is meant")
+    return MomentRelease(first, int(hit.size), message)
 
 
 def _dofs_without_stiffness(layout: DofLayout, bodies: Bodies, fixed: NDArray[np.int64]) -> int:

@@ -91,7 +91,7 @@ def plane_frame_stiffness(x: NDArray[np.float64], ea: float = YOUNG * AREA,
     """Plane frame (beam-column) element over (ux1, uy1, rz1, ux2, uy2, rz2), global axes.
 
     Local matrix: axial EA/L and Euler-Bernoulli bending (12EI/L^3, 6EI/L^2,
-    4EI/L, 2EI/L), rotated by the direction cosines (Logan 2007, ch. 5).
+    4EI/L, 2EI/L), rotated by the direction cosines (Logan 2007, chapter on frames).
     """
     d = x[:, 1, :2] - x[:, 0, :2]
     length = np.linalg.norm(d, axis=1)
@@ -122,7 +122,7 @@ def space_frame_local(length: NDArray[np.float64], ea: float = YOUNG * AREA,
     """Space frame element in local axes over (u, v, w, rx, ry, rz) at both ends.
 
     Axial, torsion, and bending in the local x-y (v, rz) and x-z (w, ry)
-    planes (Przemieniecki 1968, ch. 5; Logan 2007, ch. 5).
+    planes (Przemieniecki 1968; Logan 2007, chapter on frames).
     """
     m = len(length)
     k = np.zeros((m, 12, 12))
@@ -250,7 +250,7 @@ def _strain_matrix(grad: NDArray[np.float64]) -> NDArray[np.float64]:
 
 
 def continuum_stiffness(shape: str, x: NDArray[np.float64], scalar: bool = False,
-                        ) -> NDArray[np.float64]:
+                        elasticity: NDArray[np.float64] | None = None) -> NDArray[np.float64]:
     """Stiffness of triangles, quads (plane stress), tetrahedra or hexahedra, unit material.
 
     Parameters
@@ -261,13 +261,15 @@ def continuum_stiffness(shape: str, x: NDArray[np.float64], scalar: bool = False
         ``(m, nodes, dim)`` node coordinates (dim 2 for plane cells, 3 for solids).
     scalar
         True for the Laplace (conduction) matrix ``int grad N^T grad N``.
+    elasticity
+        Elasticity matrix; default :func:`elasticity_matrix` (unit material).
 
     Returns
     -------
     ``(m, k, k)`` element matrices, DOFs node-blocked (ux, uy[, uz] per node).
     """
     dim = x.shape[2]
-    d = elasticity_matrix(dim)
+    d = elasticity_matrix(dim) if elasticity is None else np.asarray(elasticity)
     k = None
     for grad, w in _physical_gradients(shape, x):
         if scalar:
