@@ -135,7 +135,7 @@ def test_page_is_self_contained(written):
 
 def _numbers(node, path=()):
     """Every numeric leaf of the document, except id lists, figures and the time stamp."""
-    skip = {"node_ids", "element_ids", "figures", "created", "bandwise_version"}
+    skip = {"node_ids", "element_ids", "moving_nodes", "figures", "created", "bandwise_version"}
     if isinstance(node, dict):
         for k, v in node.items():
             if k not in skip:
@@ -353,11 +353,13 @@ def test_cli_report_of_the_demo_bracket(runner, cli_app, tmp_path):
     out = tmp_path / "bracket-report"
     mesh = ROOT / "meshes" / "bracket.msh"
     before = mesh.read_bytes()
-    result = runner.invoke(cli_app, ["report", str(mesh), "--out", str(out)])
-    assert result.exit_code in (0, 1), result.stderr
+    result = runner.invoke(cli_app, ["report", str(mesh), "--out", str(out), "--method", "none"])
+    assert result.exit_code == 0, result.stderr
     assert (out / "report.html").is_file() and (out / "report.json").is_file()
     doc = json.loads((out / "report.json").read_text())
     assert doc["mesh"]["nodes"] == 1305
+    assert doc["comparison"] is None and "Orderings were not compared." in doc["not_analysed"]
+    assert doc["findings"] is not None                            # the checks ran
     assert "report.html" in result.stdout and CAUTION in result.stdout
     assert mesh.read_bytes() == before                            # the input is read-only
 
@@ -379,3 +381,57 @@ def test_cli_uncreatable_folder_exit_2(runner, cli_app, tmp_path):
     assert result.exit_code == 2
     assert result.stderr.startswith("bandwise: error:") and "does not exist" in result.stderr
     assert os.listdir(tmp_path) == []
+
+
+# --------------------------------------------------------------------------- the whole analysis
+
+
+@pytest.fixture(scope="module")
+def full_report(tmp_path_factory):
+    """``bandwise report`` on the demo bracket held at one corner node (all translations)."""
+    from typer.testing import CliRunner
+
+    from bandwise.cli import app, load_commands
+
+    load_commands()
+    out = tmp_path_factory.mktemp("full") / "report"
+    result = CliRunner().invoke(app, [
+        "report", str(ROOT / "meshes" / "bracket.msh"), "--out", str(out),
+        "--support", "near 0,0,0:ux,uy,uz", "--method", "rcm,sloan"])
+    page = (out / "report.html").read_text(encoding="utf-8")
+    return result, page, json.loads((out / "report.json").read_text(encoding="utf-8"))
+
+
+def test_full_report_counts_modes_and_equations(full_report):
+    result, page, doc = full_report
+    # one node held in all translations leaves the 3 rotations about it
+    # (rigid-body theory: 6 motions in 3D minus 3 restrained translations)
+    assert doc["modes"]["total"] == 3 and doc["modes"]["rigid"] == 3
+    assert doc["verdict"]["status"] == "problems found"
+    assert result.exit_code == 1
+    eq = doc["equations"]
+    assert eq["dofs"] == 3 * 1305 and eq["fixed_dofs"] == 3 and eq["equations"] == 3 * 1305 - 3
+    assert eq["reduced_system"]["n_rows"] == eq["equations"]
+    sections = parse(page).sections
+    assert sections == ["findings", "mesh", "sizing", "orderings", "supports", "not-analysed"]
+
+
+def test_full_report_comparison_is_shown_and_kept_marked(full_report):
+    _, page, doc = full_report
+    comp = doc["comparison"]
+    names = [m["method"] for m in comp["methods"]]
+    assert names == ["original", "rcm", "sloan"]
+    kept = [m for m in comp["methods"] if m["chosen"]]
+    assert len(kept) == 1 and kept[0]["method"] == comp["chosen"] == doc["renumbering"]["method"]
+    assert page.count('<tr class="kept">') == 2                    # DOF and node tables
+    assert len(parse(page).images) == 5                           # the chart is there
+    # the kept ordering is never worse than the original for the objective (profile)
+    assert kept[0]["dofs"]["profile"] <= comp["methods"][0]["dofs"]["profile"]
+
+
+def test_full_report_every_json_figure_is_in_the_html(full_report):
+    _, page, doc = full_report
+    values = set(parse(page).values)
+    found = list(_numbers(doc))
+    assert len(found) > 100
+    assert [(p, v) for p, v in found if repr(v) not in values] == []

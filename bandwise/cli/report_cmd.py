@@ -12,14 +12,22 @@ from typing import Annotated
 
 import typer
 
-from ..dofs import dof_layout
+from ..checks import run_checks
+from ..checks.verdict import check_fail_on
+from ..compare import OBJECTIVES, compare_orderings
+from ..dofs import DofLayout, dof_layout
+from ..equations import equation_numbering
 from ..graph import node_graph
 from ..meshio_io import read_model
+from ..model import Model
 from ..progress import Progress, StderrProgress, step
-from ..report import ReportInputs, write_report
+from ..report import ReportInputs, check_report_folder, write_report
 from ..report.document import PROBLEMS, verdict
+from ..rigid import zero_energy_modes
 from ..summary import summarise
+from ..supports import SupportSet, apply_supports, parse_support, read_support_file
 from . import CAUTION, EXIT_FINDINGS, DofsOpt, FormatOpt, PhysicsOpt, app, guarded
+from .check_cmd import FailOnOpt
 
 #: The ``--report DIR`` option other commands add to their signature.
 ReportOpt = Annotated[Path | None, typer.Option(
@@ -41,6 +49,15 @@ def write_report_option(out_dir: Path | None, inputs: ReportInputs,
     typer.echo(f"bandwise: report written: {files.html}", err=True)
 
 
+def _supports(model: Model, layout: DofLayout, support: list[str] | None,
+              supports_file: Path | None) -> SupportSet | None:
+    """The supports given on the command line and in a file, applied (None if none)."""
+    given = [parse_support(text) for text in support or []]
+    if supports_file is not None:
+        given += read_support_file(supports_file)
+    return apply_supports(model, layout, given) if given else None
+
+
 @app.command()
 @guarded
 def report(
@@ -49,22 +66,51 @@ def report(
         "--out", metavar="DIR",
         help="Report folder: report.html, report.json and the PNG figures "
              "(created if missing; its parent must exist).")],
+    support: Annotated[list[str] | None, typer.Option(
+        "--support", metavar="SELECTOR:DOFS",
+        help="A support, e.g. 'WALL:fixed', 'plane x=0:ux,uy' (repeatable); with supports "
+             "the report counts zero-energy modes and equations.")] = None,
+    supports_file: Annotated[Path | None, typer.Option(
+        "--supports", metavar="FILE", help="Supports from a TOML file.")] = None,
+    method: Annotated[str, typer.Option(
+        "--method", help="Orderings to compare: auto, none, or names separated by commas.")
+    ] = "auto",
+    objective: Annotated[str, typer.Option(
+        "--objective", help=f"What the kept ordering minimises: {' | '.join(OBJECTIVES)}.")
+    ] = "profile",
+    fail_on: FailOnOpt = "error",
     file_format: FormatOpt = None,
     dofs_per_node: DofsOpt = None,
     physics: PhysicsOpt = None,
 ) -> None:
     """Write the report to attach to a job: a self-contained HTML page with figures, and JSON.
 
-    Exit code 1 when the verdict is "problems found", 0 otherwise, 2 when it
-    cannot run (nothing is written then).
+    Runs the mesh checks, compares orderings and, with supports, counts the
+    zero-energy modes and the equations.  Exit code 1 when the verdict is
+    "problems found", 0 otherwise, 2 when it cannot run (nothing is written then).
     """
+    check_fail_on(fail_on)
+    check_report_folder(out)
     progress = StderrProgress()
     model = read_model(mesh, file_format)
     layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
+    supports = _supports(model, layout, support, supports_file)
     with step(progress, "building node graph"):
         graph = node_graph(model)
     summary = summarise(model, layout, graph, progress=progress)
-    inputs = ReportInputs(model=model, graph=graph, layout=layout, summary=summary)
+    findings = run_checks(model, graph, progress=progress)
+    comparison = (None if method == "none" else
+                  compare_orderings(graph, method, objective, layout, progress=progress))
+    perm = None if comparison is None else comparison.best.perm
+    modes = equations = None
+    if supports is not None:
+        with step(progress, "finding zero-energy modes"):
+            modes = zero_energy_modes(model, layout, supports, graph)
+        with step(progress, "numbering equations"):
+            equations = equation_numbering(layout, supports.fixed, perm, graph)
+    inputs = ReportInputs(model=model, graph=graph, layout=layout, summary=summary,
+                          findings=findings, comparison=comparison, supports=supports,
+                          modes=modes, equations=equations, fail_on=fail_on)
     files = write_report(out, inputs, progress)
     v = verdict(inputs)
     typer.echo(f"report: {files.html}")

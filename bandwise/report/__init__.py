@@ -6,9 +6,9 @@
 
 from __future__ import annotations
 
-from .build import ReportFiles, report_figures, write_report
+from .build import ReportFiles, check_report_folder, report_figures, write_report
 from .document import report_document, verdict
 from .inputs import ReportInputs
 
-__all__ = ["ReportFiles", "ReportInputs", "report_document", "report_figures", "verdict",
-           "write_report"]
+__all__ = ["ReportFiles", "ReportInputs", "check_report_folder", "report_document",
+           "report_figures", "verdict", "write_report"]

@@ -208,8 +208,13 @@ def report_figures(inputs: ReportInputs, progress: Progress | None = None) -> li
     return out
 
 
-def _report_folder(out_dir: Path) -> Path:
-    """Check that the report folder can be written: its parent exists, it is no file."""
+def check_report_folder(out_dir: str | os.PathLike[str]) -> Path:
+    """Check that a report folder can be written (its parent exists, it is no file).
+
+    Commands call it before a long analysis, so a bad ``--out`` fails at once.
+    Returns the parent folder; raises :class:`~bandwise.errors.MeshWriteError`.
+    """
+    out_dir = Path(out_dir)
     parent = out_dir.resolve().parent
     if out_dir.exists() and not out_dir.is_dir():
         raise MeshWriteError(f"{out_dir}: exists and is not a folder")
@@ -260,7 +265,7 @@ def write_report(out_dir: str | os.PathLike[str], inputs: ReportInputs,
         The folder cannot be created or written; nothing is left behind.
     """
     out = Path(out_dir)
-    parent = _report_folder(out)
+    parent = check_report_folder(out)
     try:
         tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".part", dir=parent))
         tmp.chmod(0o777 & ~_umask())  # mkdtemp makes it private; the folder is published

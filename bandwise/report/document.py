@@ -15,6 +15,7 @@ import numpy as np
 
 from .. import __version__
 from ..caution import CAUTION
+from ..checks.verdict import failing
 from ..metrics import INDEX_BYTES, VALUE_BYTES, Metrics, metrics
 from .inputs import ReportInputs
 
@@ -58,10 +59,11 @@ def verdict(inputs: ReportInputs) -> dict[str, str]:
     """One-line verdict: ``ready``, ``problems found`` or ``not checked``, and why."""
     reasons = []
     if inputs.findings is not None:
-        errors = [f for f in inputs.findings if getattr(f, "severity", "") == "error"]
-        if errors:
-            reasons.append(f"{len(errors)} error finding{'s' * (len(errors) != 1)} "
-                           f"({', '.join(f.code for f in errors[:4])})")
+        gate = failing(list(inputs.findings), inputs.fail_on)
+        if gate:
+            codes = ", ".join(dict.fromkeys(f.code for f in gate))
+            reasons.append(f"{len(gate)} finding{'s' * (len(gate) != 1)} at or above "
+                           f"{inputs.fail_on} ({codes})")
     free = free_mode_count(inputs.modes)
     if free:
         reasons.append(f"{free} zero-energy mode{'s' * (free != 1)} left by the supports: "
@@ -70,9 +72,10 @@ def verdict(inputs: ReportInputs) -> dict[str, str]:
         return {"status": PROBLEMS, "reason": "; ".join(reasons)}
     if inputs.findings is None:
         return {"status": UNCHECKED, "reason": "the mesh checks were not run"}
-    warnings = sum(1 for f in inputs.findings if getattr(f, "severity", "") == "warning")
-    tail = f" ({warnings} warning{'s' * (warnings != 1)} to review)" if warnings else ""
-    return {"status": READY, "reason": f"no error found by the checks{tail}"}
+    rest = len(inputs.findings)
+    tail = f" ({rest} finding{'s' * (rest != 1)} below the gate to review)" if rest else ""
+    return {"status": READY, "reason": f"nothing at or above {inputs.fail_on} found by the "
+                                       f"checks{tail}"}
 
 
 def not_analysed(inputs: ReportInputs) -> list[str]:

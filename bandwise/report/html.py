@@ -366,11 +366,33 @@ def supports_section(doc: Mapping[str, Any], figures_html: str) -> str:
         out.append(modes_html(modes))
     equations = doc.get("equations")
     if equations is not None:
-        out.append("<h3>Equations</h3>")
-        out.append(facts_table(equations if isinstance(equations, dict)
-                               else {"equations": equations}))
+        out.append(equations_html(equations))
     out.append(figures_html)
     out.append("</section>")
+    return "\n".join(out)
+
+
+def equations_html(eq: Mapping[str, Any]) -> str:
+    """DOFs, held DOFs, equations left, and the reduced system's figures."""
+    out = ["<h3>Equations</h3>",
+           table([["DOFs", eq.get("dofs")], ["held DOFs (reactions recovered afterwards)",
+                                           eq.get("fixed_dofs")],
+                  ["equations to solve", eq.get("equations")]])]
+    reduced = eq.get("reduced_system")
+    if isinstance(reduced, dict):
+        out.append("<p>Reduced system (held rows and columns removed), measured on its own "
+                   "pattern in the renumbered order:</p>")
+        rows = [("<table><tr><th>figure</th><th>reduced system</th>"
+                "<th>unit / convention</th></tr>")]
+        for key, (label, unit) in FIGURE_LABELS.items():
+            if key in reduced:
+                rows.append(f"<tr><td>{esc(label)}</td>{_cell(reduced[key], key)}"
+                            f'<td class="unit">{esc(unit)}</td></tr>')
+        out.append("".join(rows) + "</table>")
+        extra = {k: v for k, v in eq.items()
+                 if k not in ("dofs", "fixed_dofs", "equations", "reduced_system")}
+        if extra:
+            out.append(facts_table(extra))
     return "\n".join(out)
 
 
@@ -383,7 +405,7 @@ def modes_html(modes: Mapping[str, Any]) -> str:
                         f"{number(total)} zero-energy mode(s): the stiffness matrix is "
                         "singular with these supports.") + "</p>")
     scalars = {k: v for k, v in modes.items()
-               if not isinstance(v, (list, dict)) and k != "total"}
+               if not isinstance(v, (list, dict)) and v is not None and k != "total"}
     out.append(facts_table({"total": total, **scalars}))
     parts = [{k: v for k, v in p.items() if k != "details"} for p in modes.get("per_part", [])]
     if parts:

@@ -42,6 +42,9 @@ class ReportInputs:
         Zero-energy (rigid-body and mechanism) modes left by the supports, or None.
     equations
         Equation count with held DOFs eliminated, or None.
+    fail_on
+        Lowest finding severity that makes the verdict "problems found"
+        (the ``--fail-on`` gate of :mod:`bandwise.checks.verdict`).
     created
         Time stamp written in the report (UTC).
     """
@@ -57,6 +60,7 @@ class ReportInputs:
     supports: Any | None = None
     modes: Any | None = None
     equations: Any | None = None
+    fail_on: str = "error"
     created: dt.datetime = field(default_factory=_now)
 
     @property
