@@ -137,7 +137,7 @@ def pattern_figure(inputs: ReportInputs) -> Figure:
 
     @styled
     def draw() -> Any:
-        fig = MplFigure(figsize=(11.0 if after else 6.0, 5.2), layout="constrained")
+        fig = MplFigure(figsize=(12.0 if after else 6.5, 6.0), layout="constrained")
         axes = fig.subplots(1, 2 if after else 1, squeeze=False)[0]
         fg.pattern_axes(before, "Current numbering", ax=axes[0], vmax=vmax)
         if after is not None:
@@ -150,7 +150,8 @@ def pattern_figure(inputs: ReportInputs) -> Figure:
                + ("one cell per entry." if exact else
                   f"binned {before.bins} x {before.bins}, darker = more nonzeros (log "
                   "scale, same scale on both sides)."))
-    return Figure("pattern.png", "sizing", caption, fg.png_bytes(draw()))
+    # about one screen pixel per bin: the density image is not resampled away
+    return Figure("pattern.png", "sizing", caption, fg.png_bytes(draw(), dpi=130))
 
 
 def curve_figures(inputs: ReportInputs) -> list[Figure]:

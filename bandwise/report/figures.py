@@ -27,7 +27,7 @@ def new_axes(width: float = 7.0, height: float = 4.5) -> Any:
     return fig.add_subplot()
 
 
-def png_bytes(ax_or_fig: Any) -> bytes:
+def png_bytes(ax_or_fig: Any, dpi: float | None = None) -> bytes:
     """The figure of an Axes (or a Figure) as PNG bytes, rendered with Agg."""
     import io
 
@@ -36,7 +36,7 @@ def png_bytes(ax_or_fig: Any) -> bytes:
     fig = getattr(ax_or_fig, "figure", ax_or_fig)
     FigureCanvasAgg(fig)
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", metadata={"Software": None})
+    fig.savefig(buf, format="png", dpi=dpi or "figure", metadata={"Software": None})
     return buf.getvalue()
 
 

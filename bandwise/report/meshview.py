@@ -103,13 +103,43 @@ def _pad4(faces: NDArray[np.int64]) -> NDArray[np.int64]:
     return np.concatenate([faces, faces[:, -1:]], axis=1)
 
 
+def _three_smallest(corners: NDArray[np.int64]) -> NDArray[np.int64]:
+    """The three smallest node numbers of each face, ascending (no full sort for triangles)."""
+    if corners.shape[1] == 3:
+        a, b, c = corners.T
+        lo = np.minimum(np.minimum(a, b), c)
+        hi = np.maximum(np.maximum(a, b), c)
+        return np.stack([lo, a + b + c - lo - hi, hi], axis=1)
+    return np.sort(corners, axis=1)[:, :3]
+
+
+def _met_once(key: NDArray[np.int64]) -> NDArray[np.bool_]:
+    """True where a key occurs exactly once (one sort, one binary search)."""
+    ordered = np.sort(key)
+    single = np.ones(ordered.size, dtype=bool)
+    same = ordered[1:] == ordered[:-1]
+    single[1:] &= ~same
+    single[:-1] &= ~same
+    once = ordered[single]
+    if once.size == 0:
+        return np.zeros(key.size, dtype=bool)
+    at = np.minimum(np.searchsorted(once, key), once.size - 1)
+    return once[at] == key
+
+
 def outer_faces(model: Model) -> NDArray[np.int64]:
     """Faces of the 3D cells that belong to one cell only, as ``(m, 4)`` corners.
 
     A face is identified by its three smallest node numbers (enough in a
     conforming mesh); faces met once are on the outside (or on a crack).
+
+    Notes
+    -----
+    One sort of the F face keys and a binary search: O(F log F).
     """
-    faces, smallest_parts = [], []
+    faces, keys = [], []
+    n = max(model.n_nodes, 1)
+    packed = float(n) ** 3 < 2.0 ** 62
     for block in model.cells:
         base = block.type.rstrip("0123456789") if block.type not in FACES else block.type
         table = FACES.get(base)
@@ -117,19 +147,17 @@ def outer_faces(model: Model) -> NDArray[np.int64]:
             continue
         for face in table:
             corners = block.data[:, list(face)].astype(np.int64)
-            smallest_parts.append(np.sort(corners, axis=1)[:, :3])
+            small = _three_smallest(corners)
+            keys.append((small[:, 0] * n + small[:, 1]) * n + small[:, 2] if packed else small)
             faces.append(_pad4(corners))
     if not faces:
         return np.zeros((0, 4), dtype=np.int64)
     allf = np.concatenate(faces)
-    smallest = np.concatenate(smallest_parts)
-    n = max(model.n_nodes, 1)
-    if float(n) ** 3 < 2.0 ** 62:
-        key = (smallest[:, 0] * n + smallest[:, 1]) * n + smallest[:, 2]
-        _, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
-    else:  # pragma: no cover - beyond two million nodes
-        _, inverse, counts = np.unique(smallest, axis=0, return_inverse=True,
-                                       return_counts=True)
+    if packed:
+        return allf[_met_once(np.concatenate(keys))]
+    # pragma: no cover - beyond two million nodes the key does not fit 63 bits
+    _, inverse, counts = np.unique(np.concatenate(keys), axis=0, return_inverse=True,
+                                   return_counts=True)
     return allf[counts[inverse.ravel()] == 1]
 
 
