@@ -38,6 +38,7 @@ import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.sparse as sp
@@ -46,6 +47,9 @@ from numpy.typing import NDArray
 from .atomic import write_bytes_atomic
 from .errors import InputError, MeshReadError
 from .model import check_permutation
+
+if TYPE_CHECKING:
+    from .summary import MeshSummary
 
 #: Matrix Market file name endings.
 MATRIX_MARKET_EXTENSIONS = (".mtx", ".mm", ".mtx.gz", ".mm.gz")
@@ -454,3 +458,52 @@ def write_matrix_market(path: str | os.PathLike[str], matrix: sp.spmatrix,
     """
     write_bytes_atomic(path, matrix_market_text(matrix, perm, symmetry=symmetry, field=field,
                                                 comment=comment).encode("utf-8"))
+
+
+# --------------------------------------------------------------------------- sizing
+
+def summarise_matrix(data: MatrixData) -> MeshSummary:
+    """Size up a matrix pattern under its current order, as ``check`` does for a mesh.
+
+    Each row is one unknown (node and DOF level coincide); connected parts
+    and isolated rows (no off-diagonal entry) come from the pattern's graph.
+    """
+    from .graph import graph_from_matrix
+    from .metrics import metrics
+    from .summary import MeshSummary, count_parts
+
+    graph = graph_from_matrix(data.matrix)
+    figures = metrics(graph)
+    n_parts, isolated = count_parts(graph)
+    n = data.n_rows
+    return MeshSummary(
+        source=data.source, file_format=matrix_format_name(data.source), n_nodes=n,
+        cells_by_type={}, dimension=0, dof_rule="one unknown per matrix row",
+        dofs_by_signature={"matrix rows": n}, n_dofs=n, n_parts=n_parts, n_orphans=isolated,
+        skipped=[], node_level=figures, dof_level=figures,
+        extra={"matrix": {"symmetry": data.symmetry, "field": data.field,
+                          "entries": int(data.matrix.nnz), "title": data.title}},
+    )
+
+
+def matrix_format_name(path: str | os.PathLike[str]) -> str:
+    """``matrix market``, ``rutherford-boeing`` or ``harwell-boeing`` from the file name."""
+    if is_matrix_market_name(path):
+        return "matrix market"
+    if _name(path).endswith(RUTHERFORD_BOEING_EXTENSIONS):
+        return "rutherford-boeing"
+    return "harwell-boeing"
+
+
+def matrix_facts(summary: MeshSummary) -> list[tuple[str, str]]:
+    """Label/value lines describing a matrix summarised by :func:`summarise_matrix`."""
+    info = summary.extra.get("matrix", {})
+    return [
+        ("file", f"{summary.source} ({summary.file_format})"),
+        ("rows", f"{summary.n_nodes:,}"),
+        ("entries", (f"{info.get('entries', 0):,} (both triangles, diagonal and explicit "
+                    "zeros included)")),
+        ("kind", f"{info.get('field', '')} {info.get('symmetry', '')}"),
+        ("connected parts", f"{summary.n_parts}"),
+        ("isolated rows", f"{summary.n_orphans}"),
+    ]

@@ -82,6 +82,34 @@ def summary_text(s: MeshSummary) -> str:
     ])
 
 
+def _matrix_check(files: list[Path], as_json: bool) -> bool:
+    """``check`` on matrix files (.mtx, .rb, .rsa ...): the same figures, for the pattern.
+
+    Returns False, doing nothing, when no file is a matrix.
+    """
+    from ..errors import InputError
+    from ..matrix_io import is_matrix_file, matrix_facts, read_matrix_data, summarise_matrix
+
+    matrices = [is_matrix_file(p) for p in files]
+    if not any(matrices):
+        return False
+    if not all(matrices):
+        raise InputError("check meshes and matrix files in separate runs")
+    results = [summarise_matrix(read_matrix_data(p)) for p in files]
+    if as_json:
+        emit_json({"bandwise_version": __version__, "caution": CAUTION,
+                   "meshes": [r.to_dict() for r in results]})
+        return True
+    for s in results:
+        text = summary_text(s)
+        typer.echo(render_table(matrix_facts(s), align="ll"))
+        typer.echo("")
+        typer.echo(text[text.index("Current numbering"):])
+        typer.echo("")
+    typer.echo(CAUTION)
+    return True
+
+
 @app.command()
 @guarded
 def check(
@@ -100,6 +128,8 @@ def check(
     Exit code 1 when a finding at or above --fail-on is found.
     """
     check_fail_on(fail_on)
+    if _matrix_check(files, as_json):
+        return
     options = CheckOptions(tolerance=tolerance, relative_tolerance=relative_tolerance)
     progress = StderrProgress()
     results = []
