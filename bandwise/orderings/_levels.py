@@ -38,7 +38,7 @@ from ..graph import NodeGraph
 NO_CAP = np.iinfo(np.int64).max
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, inline="always")
 def _sort_by_degree(order, lo, hi, deg):  # pragma: no cover - compiled
     """Stable insertion sort of ``order[lo:hi]`` by increasing degree (short runs)."""
     for a in range(lo + 1, hi):
@@ -185,48 +185,59 @@ def _shrunk_last_level(order, level_ptr, depth, deg, cand):  # pragma: no cover 
 
 
 @numba.njit(cache=True, nogil=True)
-def _pseudo_diameter(indptr, indices, deg, low, seen, stamp, order, start, level_ptr,
+def _pseudo_diameter(indptr, indices, deg, low, seen, stamp, trees, tree_ptr, start,
                      cand):  # pragma: no cover - compiled
     """Ends ``(s, e)`` of a pseudo-diameter of the part containing ``low``.
 
     Gibbs-Poole-Stockmeyer step I with Sloan's (1989) refinements: start at
-    ``low``, a node of minimum degree of its part; build its level structure; try the last-level
-    candidates (:func:`_shrunk_last_level`) in increasing degree, abandoning
-    any search as soon as a level is as wide as the narrowest complete one
-    found so far; a deeper structure makes its root the new start; otherwise
-    the candidate of least width is the end.
+    ``low``, a node of minimum degree of its part; build its level
+    structure; try the last-level candidates (:func:`_shrunk_last_level`) in
+    increasing degree, abandoning any search as soon as a level is as wide
+    as the narrowest complete one found so far; a deeper structure makes its
+    root the new start; otherwise the candidate of least width is the end.
 
-    ``order[start:start+size]`` is scratch space here: callers sweep again
-    from the end they need.  Returns
-    ``(s, e, size, depth, stamp)``.
+    ``trees`` (3 x n) and ``tree_ptr`` (3 x (n + 1)) hold three level
+    structures in the layout of :func:`_sweep` (the start's, the current
+    trial, the best end so far), so that neither end has to be searched
+    again.  Returns ``(s, e, size, depth, row_s, row_e, width_s, width_e,
+    stamp)``: the structures of ``s`` and ``e`` are in rows ``row_s`` and
+    ``row_e``.
     """
+    row_s, row_trial, row_e = 0, 1, 2
     s = low
     stamp += 1
-    size, depth, _, _ = _sweep(indptr, indices, deg, s, seen, stamp, order, start,
-                               level_ptr, False, NO_CAP)
+    size, depth, width_s, _ = _sweep(indptr, indices, deg, s, seen, stamp, trees[row_s], start,
+                                     tree_ptr[row_s], False, NO_CAP)
     while True:
-        k = _shrunk_last_level(order, level_ptr, depth, deg, cand)
-        best_width = NO_CAP
+        k = _shrunk_last_level(trees[row_s], tree_ptr[row_s], depth, deg, cand)
+        width_e = NO_CAP
         e = -1
         deeper = False
         for c in range(k):
             x = cand[c]
             stamp += 1
-            _, d, w, _ = _sweep(indptr, indices, deg, x, seen, stamp, order, start,
-                             level_ptr, False, best_width)
+            _, d, w, _ = _sweep(indptr, indices, deg, x, seen, stamp, trees[row_trial], start,
+                                tree_ptr[row_trial], False, width_e)
             if d < 0:
                 continue
             if d > depth:
                 s = x
                 depth = d
+                width_s = w
+                row_s, row_trial = row_trial, row_s
                 deeper = True
                 break
-            if w < best_width:
-                best_width = w
+            if w < width_e:
+                width_e = w
                 e = x
+                row_e, row_trial = row_trial, row_e
         if not deeper:
-            return s, e, size, depth, stamp
-        # the structure of the new start is in place: look at its last level
+            return s, e, size, depth, row_s, row_e, width_s, width_e, stamp
+
+
+def _tree_arrays(n: int) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Room for the three level structures of :func:`_pseudo_diameter`."""
+    return np.empty((3, n), dtype=np.int64), np.empty((3, n + 1), dtype=np.int64)
 
 
 def _work_arrays(n: int) -> tuple[NDArray[np.int64], ...]:
@@ -284,9 +295,10 @@ def pseudo_diameter(graph: NodeGraph, nodes_of_part: NDArray[np.integer]) -> tup
         raise InputError(f"the part's nodes must be node numbers of the graph (0..{graph.n - 1})")
     deg = graph.degrees()
     low = int(nodes[np.argmin(deg[nodes])])
-    seen, order, level_ptr, cand = _work_arrays(graph.n)
-    s, e, _, _, _ = _pseudo_diameter(graph.indptr, graph.indices, deg, low,
-                                     seen, 0, order, 0, level_ptr, cand)
+    seen, _, _, cand = _work_arrays(graph.n)
+    trees, tree_ptr = _tree_arrays(graph.n)
+    s, e = _pseudo_diameter(graph.indptr, graph.indices, deg, low, seen, 0, trees, tree_ptr, 0,
+                            cand)[:2]
     return int(s), int(e)
 
 

@@ -33,7 +33,7 @@ from numpy.typing import NDArray
 
 from ..graph import NodeGraph
 from . import register
-from ._levels import NO_CAP, _nodes_by_degree, _pseudo_diameter, _sort_by_degree, _sweep
+from ._levels import _nodes_by_degree, _pseudo_diameter, _sort_by_degree
 
 
 @numba.njit(cache=True, nogil=True)
@@ -195,26 +195,17 @@ def _number_by_levels(indptr, indices, deg, root, forward, depth, comb, lptr, me
 
 
 @numba.njit(cache=True, nogil=True)
-def _gps_part(indptr, indices, deg, low, seen, stamp, order, start, level_ptr, cand, lv, lu,
-              comb):  # pragma: no cover - compiled
+def _gps_part(indptr, indices, deg, low, seen, stamp, order, start, trees, tree_ptr, cand, lv,
+              lu, comb):  # pragma: no cover - compiled
     """Gibbs-Poole-Stockmeyer numbering of the part of ``low``; returns ``(size, stamp)``."""
-    s, e, size, depth, stamp = _pseudo_diameter(indptr, indices, deg, low, seen, stamp, order,
-                                                start, level_ptr, cand)
+    s, e, size, depth, row_s, row_e, width_v, width_u, stamp = _pseudo_diameter(
+        indptr, indices, deg, low, seen, stamp, trees, tree_ptr, start, cand)
     if size <= 2:
-        stamp += 1
-        _sweep(indptr, indices, deg, s, seen, stamp, order, start, level_ptr, True, NO_CAP)
+        order[start:start + size] = trees[row_s, start:start + size]
         return size, stamp
-    stamp += 1
-    _, depth, width_v, _ = _sweep(indptr, indices, deg, s, seen, stamp, order, start,
-                                  level_ptr, False, NO_CAP)
-    _levels_of(order, level_ptr, depth, lv, False)
-    stamp += 1
-    _, depth_u, width_u, _ = _sweep(indptr, indices, deg, e, seen, stamp, order, start,
-                                    level_ptr, False, NO_CAP)
-    if depth_u != depth:
-        raise ValueError("pseudo-diameter ends with level structures of different depth")
-    _levels_of(order, level_ptr, depth, lu, True)
-    nodes = order[start:start + size].copy()
+    _levels_of(trees[row_s], tree_ptr[row_s], depth, lv, False)
+    _levels_of(trees[row_e], tree_ptr[row_e], depth, lu, True)
+    nodes = trees[row_s, start:start + size].copy()
     stamp = _combined_levels(indptr, indices, nodes, depth, lv, lu, width_v, width_u, comb,
                              seen, stamp, cand)
     lptr, members = _level_lists(nodes, comb, depth, deg)
@@ -236,7 +227,8 @@ def _gps_parts(indptr, indices):  # pragma: no cover - compiled
         deg[v] = indptr[v + 1] - indptr[v]
     seen = np.zeros(n, dtype=np.int64)
     order = np.empty(n, dtype=np.int64)
-    level_ptr = np.empty(n + 1, dtype=np.int64)
+    trees = np.empty((3, n), dtype=np.int64)
+    tree_ptr = np.empty((3, n + 1), dtype=np.int64)
     cand = np.empty(n, dtype=np.int64)
     lv = np.empty(n, dtype=np.int64)
     lu = np.empty(n, dtype=np.int64)
@@ -246,8 +238,8 @@ def _gps_parts(indptr, indices):  # pragma: no cover - compiled
     for v in _nodes_by_degree(deg):
         if seen[v] != 0:
             continue
-        size, stamp = _gps_part(indptr, indices, deg, v, seen, stamp, order, placed, level_ptr,
-                                cand, lv, lu, comb)
+        size, stamp = _gps_part(indptr, indices, deg, v, seen, stamp, order, placed, trees,
+                                tree_ptr, cand, lv, lu, comb)
         order[placed:placed + size] = order[placed:placed + size][::-1].copy()
         placed += size
     return order

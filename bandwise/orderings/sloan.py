@@ -43,92 +43,108 @@ from ._levels import NO_CAP, _nodes_by_degree, _pseudo_diameter, _sweep
 INACTIVE, PREACTIVE, ACTIVE, POSTACTIVE = 0, 1, 2, 3
 
 
+# The heap keeps a copy of each entry's priority beside its node (``hkey``), so
+# that sifting touches only the heap's own small arrays, not the per-node ones.
+# Its operations are inlined: a compiled call per operation (with its array
+# reference counting) would cost several times the operation itself.
+
+
 @numba.njit(cache=True, nogil=True, inline="always")
-def _ahead(prio, a, b):  # pragma: no cover - compiled
-    """Whether node ``a`` comes out of the heap before ``b`` (ties: lower node first)."""
-    return prio[a] > prio[b] or (prio[a] == prio[b] and a < b)
+def _ahead(hkey, heap, a, b):  # pragma: no cover - compiled
+    """Whether heap entry ``a`` comes out before entry ``b`` (ties: lower node first)."""
+    return hkey[a] > hkey[b] or (hkey[a] == hkey[b] and heap[a] < heap[b])
 
 
-@numba.njit(cache=True, nogil=True)
-def _sift_up(heap, where, prio, i):  # pragma: no cover - compiled
+@numba.njit(cache=True, nogil=True, inline="always")
+def _sift_up(heap, hkey, where, i):  # pragma: no cover - compiled
     v = heap[i]
+    kv = hkey[i]
     while i > 0:
         parent = (i - 1) >> 1
-        u = heap[parent]
-        if not _ahead(prio, v, u):
+        kp = hkey[parent]
+        if kv < kp or (kv == kp and v > heap[parent]):
             break
+        u = heap[parent]
         heap[i] = u
+        hkey[i] = kp
         where[u] = i
         i = parent
     heap[i] = v
+    hkey[i] = kv
     where[v] = i
 
 
-@numba.njit(cache=True, nogil=True)
-def _sift_down(heap, where, prio, i, size):  # pragma: no cover - compiled
+@numba.njit(cache=True, nogil=True, inline="always")
+def _sift_down(heap, hkey, where, i, size):  # pragma: no cover - compiled
     v = heap[i]
+    kv = hkey[i]
     while True:
         child = 2 * i + 1
         if child >= size:
             break
-        if child + 1 < size and _ahead(prio, heap[child + 1], heap[child]):
+        if child + 1 < size and _ahead(hkey, heap, child + 1, child):
             child += 1
-        u = heap[child]
-        if not _ahead(prio, u, v):
+        kc = hkey[child]
+        if kc < kv or (kc == kv and heap[child] > v):
             break
+        u = heap[child]
         heap[i] = u
+        hkey[i] = kc
         where[u] = i
         i = child
     heap[i] = v
+    hkey[i] = kv
     where[v] = i
 
 
-@numba.njit(cache=True, nogil=True)
-def _push(heap, where, prio, size, v):  # pragma: no cover - compiled
+@numba.njit(cache=True, nogil=True, inline="always")
+def _push(heap, hkey, where, prio, size, v):  # pragma: no cover - compiled
     heap[size] = v
-    where[v] = size
-    _sift_up(heap, where, prio, size)
+    hkey[size] = prio[v]
+    _sift_up(heap, hkey, where, size)
     return size + 1
 
 
-@numba.njit(cache=True, nogil=True)
-def _pop(heap, where, prio, size):  # pragma: no cover - compiled
+@numba.njit(cache=True, nogil=True, inline="always")
+def _pop(heap, hkey, where, size):  # pragma: no cover - compiled
     top = heap[0]
     where[top] = -1
     size -= 1
     if size > 0:
         heap[0] = heap[size]
-        where[heap[0]] = 0
-        _sift_down(heap, where, prio, 0, size)
+        hkey[0] = hkey[size]
+        _sift_down(heap, hkey, where, 0, size)
     return top, size
 
 
-@numba.njit(cache=True, nogil=True)
-def _raise(heap, where, prio, v, amount):  # pragma: no cover - compiled
+@numba.njit(cache=True, nogil=True, inline="always")
+def _raise(heap, hkey, where, prio, v, amount):  # pragma: no cover - compiled
     """Add ``amount`` (>= 0) to the priority of ``v``, keeping the heap in order."""
     prio[v] += amount
-    if where[v] >= 0:
-        _sift_up(heap, where, prio, where[v])
+    i = where[v]
+    if i >= 0:
+        hkey[i] = prio[v]
+        _sift_up(heap, hkey, where, i)
 
 
 @numba.njit(cache=True, nogil=True)
-def _number_by_priority(indptr, indices, s, w2, prio, status, heap, where, out,
+def _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, out,
                         start):  # pragma: no cover - compiled
     """Sloan's numbering loop from ``s`` (priorities set); writes ``out[start:]``."""
-    size = _push(heap, where, prio, 0, s)
+    size = _push(heap, hkey, where, prio, 0, s)
     status[s] = PREACTIVE
     k = start
     while size > 0:
-        i, size = _pop(heap, where, prio, size)
+        i, size = _pop(heap, hkey, where, size)
         if status[i] == PREACTIVE:
             for t in range(indptr[i], indptr[i + 1]):
                 j = indices[t]
                 if status[j] == POSTACTIVE:
                     continue
-                _raise(heap, where, prio, j, w2)
+                _raise(heap, hkey, where, prio, j, w2)
                 if status[j] == INACTIVE:
                     status[j] = PREACTIVE
-                    size = _push(heap, where, prio, size, j)
+                    size = _push(heap, hkey, where, prio, size, j)
         out[k] = i
         k += 1
         status[i] = POSTACTIVE
@@ -137,43 +153,43 @@ def _number_by_priority(indptr, indices, s, w2, prio, status, heap, where, out,
             if status[j] != PREACTIVE:
                 continue
             status[j] = ACTIVE
-            _raise(heap, where, prio, j, w2)
+            _raise(heap, hkey, where, prio, j, w2)
             for r in range(indptr[j], indptr[j + 1]):
                 m = indices[r]
                 if status[m] == POSTACTIVE:
                     continue
-                _raise(heap, where, prio, m, w2)
+                _raise(heap, hkey, where, prio, m, w2)
                 if status[m] == INACTIVE:
                     status[m] = PREACTIVE
-                    size = _push(heap, where, prio, size, m)
+                    size = _push(heap, hkey, where, prio, size, m)
     return k - start
 
 
 @numba.njit(cache=True, nogil=True)
 def _sloan_part(indptr, indices, deg, low, w1, w2, key, use_key, seen, stamp, order, start,
-                level_ptr, cand, prio, status, heap, where):  # pragma: no cover - compiled
+                trees, tree_ptr, cand, prio, status, heap, hkey,
+                where):  # pragma: no cover - compiled
     """Sloan numbering of the part of ``low`` into ``order[start:]``; returns ``(size, stamp)``."""
     if use_key:
         stamp += 1
-        size, _, _, _ = _sweep(indptr, indices, deg, low, seen, stamp, order, start, level_ptr,
-                               False, NO_CAP)
+        size, _, _, _ = _sweep(indptr, indices, deg, low, seen, stamp, trees[0], start,
+                               tree_ptr[0], False, NO_CAP)
         s = low
         for a in range(start, start + size):
-            w = order[a]
+            w = trees[0, a]
             prio[w] = w1 * key[w] - w2 * (deg[w] + 1)
             if key[w] > key[s] or (key[w] == key[s] and w < s):
                 s = w
     else:
-        s, e, size, _, stamp = _pseudo_diameter(indptr, indices, deg, low, seen, stamp, order,
-                                                start, level_ptr, cand)
-        stamp += 1
-        _, depth, _, _ = _sweep(indptr, indices, deg, e, seen, stamp, order, start, level_ptr,
-                                False, NO_CAP)
+        s, _, size, depth, _, row_e, _, _, stamp = _pseudo_diameter(
+            indptr, indices, deg, low, seen, stamp, trees, tree_ptr, start, cand)
+        nodes = trees[row_e]
+        level_ptr = tree_ptr[row_e]
         for lvl in range(depth):
             for a in range(level_ptr[lvl], level_ptr[lvl + 1]):
-                w = order[a]
+                w = nodes[a]
                 prio[w] = w1 * lvl - w2 * (deg[w] + 1)
-    _number_by_priority(indptr, indices, s, w2, prio, status, heap, where, order, start)
+    _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, order, start)
     return size, stamp
 
 
@@ -186,11 +202,13 @@ def _sloan_parts(indptr, indices, w1, w2, key, use_key):  # pragma: no cover - c
         deg[v] = indptr[v + 1] - indptr[v]
     seen = np.zeros(n, dtype=np.int64)
     order = np.empty(n, dtype=np.int64)
-    level_ptr = np.empty(n + 1, dtype=np.int64)
+    trees = np.empty((3, n), dtype=np.int64)
+    tree_ptr = np.empty((3, n + 1), dtype=np.int64)
     cand = np.empty(n, dtype=np.int64)
     prio = np.empty(n, dtype=np.float64)
     status = np.zeros(n, dtype=np.int8)
     heap = np.empty(n, dtype=np.int64)
+    hkey = np.empty(n, dtype=np.float64)
     where = np.full(n, -1, dtype=np.int64)
     placed = 0
     stamp = 0
@@ -198,7 +216,8 @@ def _sloan_parts(indptr, indices, w1, w2, key, use_key):  # pragma: no cover - c
         if seen[v] != 0:
             continue
         size, stamp = _sloan_part(indptr, indices, deg, v, w1, w2, key, use_key, seen, stamp,
-                                  order, placed, level_ptr, cand, prio, status, heap, where)
+                                  order, placed, trees, tree_ptr, cand, prio, status, heap, hkey,
+                                  where)
         placed += size
     return order
 
