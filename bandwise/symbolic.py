@@ -260,7 +260,7 @@ def _without_nodes(graph: NodeGraph, perm: NDArray[np.int64], keep: NDArray[np.b
     new_id = np.cumsum(keep) - 1
     a = graph.to_scipy()[keep][:, keep].tocsr()
     a.sort_indices()
-    sub = NodeGraph(a.indptr.astype(np.int64), a.indices.astype(np.int64))
+    sub = NodeGraph(a.indptr.astype(np.int64), a.indices.astype(graph.indices.dtype))
     sub_perm = new_id[perm[keep[perm]]]
     return sub, sub_perm, inverse_permutation(sub_perm), d_old[keep]
 

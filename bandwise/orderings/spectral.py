@@ -62,7 +62,7 @@ from . import register
 __all__ = ["fiedler_vector", "laplacian", "ordered_by_parts", "spectral"]
 
 #: Largest part whose Fiedler vector is computed by a dense eigensolver.
-DENSE_LIMIT = 800
+DENSE_LIMIT = 500
 #: LOBPCG iterations allowed at each level of the multilevel scheme.
 LEVEL_ITERATIONS = 40
 
@@ -114,7 +114,9 @@ def _subgraph(adjacency: sp.csr_matrix, nodes: NDArray[np.int64]) -> NodeGraph:
     """The induced subgraph on ``nodes`` (given in increasing order), renumbered 0..k-1."""
     sub = adjacency[nodes][:, nodes].tocsr()
     sub.sort_indices()
-    return NodeGraph(sub.indptr.astype(np.int64), sub.indices.astype(np.int64))
+    # the index type of graph_from_cells, so compiled kernels see one signature
+    index_type = np.int32 if nodes.size < 2**31 - 1 else np.int64
+    return NodeGraph(sub.indptr.astype(np.int64), sub.indices.astype(index_type))
 
 
 def laplacian(graph: NodeGraph) -> sp.csr_matrix:
@@ -170,9 +172,15 @@ def _coarsened(lap: sp.csr_matrix, mass: sp.csr_matrix) -> tuple[sp.csr_matrix, 
 
 
 def _dense_fiedler(lap: sp.spmatrix, mass: sp.spmatrix) -> tuple[float, NDArray[np.float64]]:
-    """Second eigenpair of ``L x = lambda M x`` by a dense solver (small problems)."""
-    w, v = sla.eigh(lap.toarray(), mass.toarray(), subset_by_index=[1, 1])
-    return float(w[0]), v[:, 0]
+    """Second eigenpair of ``L x = lambda M x``, M diagonal, by a dense solver.
+
+    Solved in standard form ``M^-1/2 L M^-1/2 y = lambda y``, ``x = M^-1/2 y``
+    (the relatively robust representations driver, fastest for one pair).
+    """
+    scale = 1.0 / np.sqrt(mass.diagonal())
+    sym = lap.toarray() * scale[:, None] * scale[None, :]
+    w, v = sla.eigh(sym, subset_by_index=[1, 1], driver="evr")
+    return float(w[0]), v[:, 0] * scale
 
 
 def _refined(lap: sp.csr_matrix, mass: sp.csr_matrix, x: NDArray[np.float64],
