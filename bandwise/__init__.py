@@ -13,12 +13,16 @@ from __future__ import annotations
 
 from importlib.metadata import PackageNotFoundError, version
 
+from .compare import Comparison, OrderingResult, compare_orderings
 from .dofs import DofLayout, dof_layout
 from .errors import BandwiseError, InputError, MeshReadError, MeshWriteError
+from .frontal import FrontWidth, front_width, frontal_reordering, reordered_elements
 from .graph import NodeGraph, graph_from_matrix, node_graph
+from .matrix_io import is_matrix_file, read_matrix, write_matrix_market
 from .meshio_io import read_model, write_model
 from .metrics import Metrics, metrics
 from .model import CellBlock, Model, inverse_permutation
+from .node_map import read_node_map, write_node_map
 from .summary import MeshSummary, summarise
 
 try:
@@ -31,4 +35,10 @@ __all__ = [
     "MeshSummary", "MeshWriteError", "Metrics", "Model", "NodeGraph",
     "dof_layout", "graph_from_matrix", "inverse_permutation", "metrics",
     "node_graph", "read_model", "summarise", "write_model",
+]
+# choosing a numbering, frontal element order, matrix files, the node map
+__all__ += [
+    "Comparison", "FrontWidth", "OrderingResult", "compare_orderings", "front_width",
+    "frontal_reordering", "is_matrix_file", "read_matrix", "read_node_map",
+    "reordered_elements", "write_matrix_market", "write_node_map",
 ]
