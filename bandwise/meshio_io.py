@@ -123,13 +123,15 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
         raise MeshReadError(f"{path}: the file is empty")
     meshio = _meshio()
     captured = io.StringIO()
+    node_tags: dict[str, np.ndarray] = {}
     try:
         with contextlib.redirect_stdout(captured), contextlib.redirect_stderr(captured), \
                 warnings.catch_warnings():
             warnings.simplefilter("ignore")
             logging.disable(logging.CRITICAL)
             try:
-                mesh = meshio.read(path, file_format=fmt)
+                with _gmsh41_node_tags(node_tags):
+                    mesh = meshio.read(path, file_format=fmt)
             finally:
                 logging.disable(logging.NOTSET)
     except (SystemExit, KeyboardInterrupt) as exc:
@@ -144,7 +146,49 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
     if fmt == "gmsh" and _gmsh_version(path) == "2.2":
         model.file_format = "gmsh22"
     validate_model(model)
-    return model
+    from .formats import sets_from_fields  # sets written as 0/1 fields where a format has none
+
+    return sets_from_fields(_in_tag_order(model, node_tags.get("tags")))
+
+
+@contextlib.contextmanager
+def _gmsh41_node_tags(store: dict[str, np.ndarray]):
+    """Keep the node tags meshio's gmsh 4.1 reader reads and then drops.
+
+    That reader returns the nodes in file order, grouped by geometrical
+    entity, while a file's node numbering is its node tags (meshio's own
+    writer gives tag = index + 1 but writes the nodes entity by entity).
+    """
+    try:
+        from meshio.gmsh import _gmsh41
+        original = _gmsh41._read_nodes
+    except (ImportError, AttributeError):  # another meshio layout: file order is kept
+        yield
+        return
+
+    def reading(*args: Any, **kwargs: Any) -> Any:
+        points, tags, dim_tags = original(*args, **kwargs)
+        store["tags"] = np.array(tags)
+        return points, tags, dim_tags
+
+    _gmsh41._read_nodes = reading
+    try:
+        yield
+    finally:
+        _gmsh41._read_nodes = original
+
+
+def _in_tag_order(model: Model, tags: np.ndarray | None) -> Model:
+    """The model with its nodes in node-tag order (the file's numbering), if it is not already."""
+    if tags is None or tags.shape != (model.n_nodes,) or np.all(np.diff(tags) > 0):
+        return model
+    if np.unique(tags).size != tags.size:
+        return model
+    ordered = model.renumbered(np.argsort(tags, kind="stable"))
+    # the reader gives nodal fields in tag order already; only its entity tags follow the file
+    ordered.point_data = {k: (v if k == "gmsh:dim_tags" else model.point_data[k])
+                          for k, v in ordered.point_data.items()}
+    return ordered
 
 
 def model_from_meshio(mesh: Any, source: str = "", file_format: str = "") -> Model:
@@ -287,6 +331,9 @@ def write_model(model: Model, path: str | os.PathLike[str], file_format: str | N
             raise MeshWriteError(str(exc)) from None
         if file_format == "gmsh" and model.file_format == "gmsh22":
             file_format = "gmsh22"
+    from .formats import prepared_for  # gmsh needs element tags: built from the cell sets
+
+    model = prepared_for(model, file_format)
     mesh = to_meshio(model)
     if file_format == "gmsh" and "gmsh:dim_tags" not in mesh.point_data \
             and len({b.type for b in model.cells}) > 1:
