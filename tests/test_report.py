@@ -435,3 +435,29 @@ def test_full_report_every_json_figure_is_in_the_html(full_report):
     found = list(_numbers(doc))
     assert len(found) > 100
     assert [(p, v) for p, v in found if repr(v) not in values] == []
+
+
+def test_real_findings_marked_on_two_blocks_and_an_orphan(tmp_path):
+    """Two hexahedral blocks apart, a far orphan node and an orphan on top of node 1."""
+    from bandwise.checks import run_checks
+
+    a, b = hex_grid(5, 4, 3), hex_grid(3, 3, 3)
+    points = np.concatenate([a.points, b.points + [6.0, 0.0, 0.0], [[20.0, 20.0, 20.0]],
+                             a.points[:1]])
+    cells = [CellBlock("hexahedron", np.concatenate([a.cells[0].data,
+                                                     b.cells[0].data + a.n_nodes]))]
+    model = Model(points=points, cells=cells, source="two_blocks.vtu", file_format="vtu")
+    graph = node_graph(model)
+    layout = dof_layout(model)
+    findings = run_checks(model, graph)
+    inputs = ReportInputs(model, graph, layout, summarise(model, layout, graph),
+                          findings=findings)
+    marks = report_build.finding_marks(inputs)
+    n = model.n_nodes
+    assert marks["orphan"].tolist() == [n - 2, n - 1]
+    assert marks["coincident"].tolist() == [0, n - 1]
+    assert "other" not in marks                       # the parts are coloured, not marked
+    doc = json.loads(write_report(tmp_path / "r", inputs).json.read_text())
+    assert doc["verdict"]["status"] == "problems found"
+    assert "parts.disconnected" in doc["verdict"]["reason"]
+    assert doc["mesh"]["parts"] == 2 and doc["mesh"]["orphan_nodes"] == 2

@@ -79,25 +79,30 @@ def node_indices(model: Model, labels: Any) -> NDArray[np.int64]:
     return order[at[found]].astype(np.int64)
 
 
-def mark_kind(code: str) -> str:
-    """The kind of mark drawn for the nodes of a finding, from its code."""
-    code = code.lower()
-    for word, kind in (("orphan", "orphan"), ("coincid", "coincident"),
-                       ("joint", "weak joint"), ("hinge", "weak joint"),
-                       ("weak", "weak joint")):
-        if word in code:
+#: Finding codes whose nodes the mesh picture marks, by code prefix, and the mark drawn.
+#: The nodes of ``parts.disconnected`` are not marked: the parts have their own colours.
+MARKED_CODES: tuple[tuple[str, str], ...] = (
+    ("nodes.orphan", "orphan"), ("nodes.point_only", "orphan"),
+    ("nodes.coincident", "coincident"), ("joints.", "weak joint"),
+    ("nodes.articulation", "weak joint"), ("nodes.", "other"),
+)
+
+
+def mark_kind(code: str) -> str | None:
+    """The kind of mark drawn for the nodes of a finding (None: not marked)."""
+    for prefix, kind in MARKED_CODES:
+        if code.startswith(prefix):
             return kind
-    return "other"
+    return None
 
 
 def finding_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
     """Nodes to mark on the mesh picture, per kind, from the findings' node ids."""
     marks: dict[str, list[NDArray[np.int64]]] = {}
     for f in inputs.findings or ():
-        ids = getattr(f, "node_ids", ())
-        if ids:
-            marks.setdefault(mark_kind(getattr(f, "code", "")), []).append(
-                node_indices(inputs.model, ids))
+        kind = mark_kind(f.code)
+        if kind is not None and f.node_ids:
+            marks.setdefault(kind, []).append(node_indices(inputs.model, f.node_ids))
     return {k: np.unique(np.concatenate(v)) for k, v in marks.items()}
 
 

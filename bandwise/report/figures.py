@@ -86,8 +86,9 @@ def mesh_axes(view: MeshView, marks: Mapping[str, NDArray[np.integer]] | None = 
         ax.add_collection(PolyCollection(view.xy[view.facets], facecolors=colours,
                                          edgecolors=edges, linewidths=0.3))
     if len(view.lines):
-        ax.add_collection(LineCollection(view.xy[view.lines], linewidths=1.2,
-                                         colors=_part_colours(view.part[view.lines[:, 0]])))
+        # members drawn darker than facets: a thin line needs more contrast than an area
+        ax.add_collection(LineCollection(view.xy[view.lines], linewidths=1.6,
+                                         colors=_part_colours(view.part[view.lines[:, 0]]) * 0.6))
     for k in range(1, min(view.n_parts, len(PARTS)) + 1):
         handles.append(Patch(facecolor=PARTS[k - 1], edgecolor="#333333", label=f"part {k}"))
     for kind, nodes in (marks or {}).items():

@@ -31,8 +31,9 @@ FACES: dict[str, tuple[tuple[int, ...], ...]] = {
     "pyramid": ((0, 1, 2, 3), (0, 1, 4), (1, 2, 4), (2, 3, 4), (3, 0, 4)),
 }
 
-#: Azimuth and elevation (degrees) of the oblique view of 3D meshes.
-VIEW = (35.0, 25.0)
+#: Azimuth and elevation (degrees) of the oblique view of 3D meshes: seen from
+#: +x, -y, +z, so that x runs to the right and z up.
+VIEW = (-50.0, 25.0)
 
 
 @dataclass(frozen=True)

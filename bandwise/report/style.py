@@ -23,7 +23,7 @@ MARKS = {
     "coincident": ("o", "#111111"),
     "weak joint": ("D", "#e07b00"),
     "free mode": ("^", "#6a1b9a"),
-    "other": ("s", "#555555"),
+    "other": ("s", "#555555"),  # hanging and other named nodes
 }
 #: Hatching of the bar series in the comparison chart.
 HATCHES = ("", "///", "...", "xx", "\\\\", "++", "oo")
