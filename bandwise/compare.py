@@ -54,7 +54,7 @@ OBJECTIVES: tuple[str, ...] = ("bandwidth", "profile", "wavefront", "fill")
 #: Name of the candidate that keeps the numbering as it came in.
 ORIGINAL = "original"
 #: Largest graph on which the Cholesky fill is counted when fill is not the objective.
-FILL_MAX_NODES = 300_000
+FILL_MAX_NODES = 2_000_000
 
 
 @dataclass(frozen=True)

@@ -191,3 +191,32 @@ def test_matrix_file_names():
     assert is_matrix_file("a/b/K.mtx") and is_matrix_file("K.RSA") and is_matrix_file("k.rb")
     assert is_matrix_file("k.psa") and is_matrix_file("k.mtx.gz")
     assert not is_matrix_file("bracket.msh") and not is_matrix_file("bracket.vtu")
+
+
+def test_parts_of_every_matrix_match_the_published_components():
+    # published.csv "components": connected components of the pattern's graph
+    # (isolated rows count as components of their own).
+    from bandwise.matrix_io import summarise_matrix
+
+    for row in _published():
+        s = summarise_matrix(read_matrix_data(shared_path("matrices", f"{row['name']}.mtx")))
+        assert s.n_parts + s.n_orphans == int(row["components"]), row["name"]
+        assert s.node_level.bandwidth == int(row["bandwidth_original"]), row["name"]
+
+
+def test_check_reports_a_matrix_file(runner, cli_app):
+    import json
+
+    result = runner.invoke(cli_app, ["check", str(shared_path("matrices", "can_24.psa")), "--json"])
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    (matrix,) = doc["meshes"]
+    # can_24: n = 24, bandwidth 21 in the file's order (published.csv)
+    assert matrix["nodes"] == 24 and matrix["dofs"]["total"] == 24
+    assert matrix["current_numbering"]["nodes"]["bandwidth"] == 21
+    assert matrix["matrix"]["entries"] == 160 and matrix["matrix"]["field"] == "pattern"
+    text = runner.invoke(cli_app, ["check", str(shared_path("matrices", "bcsstk01.rb"))])
+    assert text.exit_code == 0 and "rutherford-boeing" in text.stdout
+    # bcsstk01: bandwidth 35 in the file's order (published.csv)
+    line = next(ln for ln in text.stdout.splitlines() if ln.startswith("bandwidth"))
+    assert line.split()[1:3] == ["35", "35"]

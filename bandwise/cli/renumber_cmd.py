@@ -246,7 +246,9 @@ def renumber(
     best = comp.best
     gain = "" if best.improvement is None else f", {best.improvement:.2f}x better than original"
     typer.echo("")
-    typer.echo(f"chosen: {best.method} ({comp.objective} {best.value(comp.objective):,.6g}{gain})")
+    value = best.value(comp.objective) or 0.0
+    shown = f"{value:,.1f}" if comp.objective == "wavefront" else f"{int(value):,}"
+    typer.echo(f"chosen: {best.method} ({comp.objective} {shown}{gain})")
     typer.echo(f"written: {out} ({result['output_format']})")
     typer.echo(f"node map (old -> new, 1-based): {node_map}")
     typer.echo("")
