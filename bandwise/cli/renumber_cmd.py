@@ -12,7 +12,7 @@ import typer
 from .. import __version__
 from ..compare import OBJECTIVES, Comparison, compare_orderings
 from ..dofs import dof_layout
-from ..errors import InputError, MeshWriteError
+from ..errors import InputError, MeshReadError, MeshWriteError
 from ..frontal import ElementReordering, frontal_reordering, reordered_elements
 from ..graph import graph_from_matrix, node_graph
 from ..matrix_io import (
@@ -21,7 +21,7 @@ from ..matrix_io import (
     read_matrix_data,
     write_matrix_market,
 )
-from ..meshio_io import read_model, write_model
+from ..meshio_io import detect_format, read_model, write_model
 from ..node_map import write_node_map
 from ..progress import StderrProgress, step
 from ..tables import human_bytes, human_count, render_table
@@ -76,9 +76,29 @@ def _output_format(source: Path, out: Path, input_format: str, output_format: st
     """Explicit ``--output-format``; else the input's format when the extensions agree."""
     if output_format is not None:
         return output_format
-    if "".join(source.suffixes).lower() == "".join(out.suffixes).lower():
+    if _same_extension(source, out):
         return input_format or None
     return None
+
+
+def _same_extension(a: Path, b: Path) -> bool:
+    return "".join(a.suffixes).lower() == "".join(b.suffixes).lower()
+
+
+def _check_writable_format(out: Path, fmt: str | None) -> None:
+    """Fail before any work when OUT's format is unknown (one line, exit 2)."""
+    if fmt is None:
+        try:
+            detect_format(out)
+        except MeshReadError:
+            raise MeshWriteError(f"{out}: unknown output extension; name the format with "
+                                 "--output-format") from None
+    else:
+        from meshio._helpers import _writer_map  # the names meshio writes
+
+        if fmt not in _writer_map:
+            raise InputError(f"unknown output format {fmt!r}; one of: "
+                             f"{', '.join(sorted(_writer_map))}")
 
 
 def comparison_text(comp: Comparison, level: str) -> str:
@@ -151,6 +171,8 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
                    dofs_per_node: int | None, physics: str | None,
                    element_order: bool) -> dict[str, Any]:
     """Mesh in, renumbered mesh out (same format unless told otherwise)."""
+    if output_format is not None or not _same_extension(source, out):
+        _check_writable_format(out, output_format)
     with step(progress, "reading the mesh"):
         model = read_model(source, file_format)
     if model.n_nodes < 2:
@@ -161,6 +183,7 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     if graph.n_edges == 0:
         raise InputError(f"{source}: no element couples two nodes (only vertex cells?): "
                          "nothing to renumber")
+    fmt = _output_format(source, out, model.file_format, output_format)
     comp = compare_orderings(graph, methods, objective, layout, options, progress)
     perm = comp.best.perm
     renumbered = model.renumbered(perm)
@@ -169,7 +192,6 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
         with step(progress, "ordering elements"):
             front = frontal_reordering(renumbered, layout)
             renumbered = reordered_elements(renumbered, front.order)
-    fmt = _output_format(source, out, model.file_format, output_format)
     with step(progress, "writing the mesh"):
         written = write_model(renumbered, out, fmt)
     write_node_map(node_map, perm, model.node_ids)
