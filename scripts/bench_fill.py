@@ -7,8 +7,9 @@ Part 1: for every matrix of the shared Harwell-Boeing set listed in
 after approximate minimum degree (column ``cholesky_nnz_amd_incl_diag``),
 with ratios to it and their geometric means.
 
-Part 2: time of the graph build, ``nd`` and ``cholesky_nnz`` (node and
-3-DOF level) on a scrambled tetrahedral box of about ``--nodes`` nodes.
+Part 2: time of the graph build, ``nd``, ``cholesky_nnz`` (node and 3-DOF
+level) and the spectral ordering on a scrambled tetrahedral box of about
+``--nodes`` nodes.
 
 Usage::
 
@@ -86,12 +87,12 @@ def timed(label: str, func, *args):
     """Run ``func(*args)``, print its wall time, return its result."""
     t0 = time.perf_counter()
     out = func(*args)
-    print(f"  {label:<34} {time.perf_counter() - t0:8.2f} s")
+    print(f"  {label:<40} {time.perf_counter() - t0:8.2f} s")
     return out
 
 
-def mesh_timing(nodes: int) -> None:
-    """Time nd and the symbolic count on a scrambled tetrahedral box."""
+def mesh_timing(nodes: int, skip_spectral: bool = False) -> None:
+    """Time nd, the symbolic count and the spectral order on a scrambled tetrahedral box."""
     side = max(2, round(nodes ** (1 / 3)))
     model = generate.scrambled(generate.tet_grid(side, side, side), seed=7)
     print(f"\nscrambled tet box {side}^3 = {model.n_nodes} nodes")
@@ -101,6 +102,8 @@ def mesh_timing(nodes: int) -> None:
     perm = timed("nd ordering (METIS)", ORDERINGS["nd"].func, graph)
     fill = timed("cholesky_nnz, nd", cholesky_nnz, graph, perm)
     fill3 = timed("cholesky_nnz, nd, 3 DOFs per node", cholesky_nnz, graph, perm, 3)
+    if not skip_spectral:
+        timed("spectral ordering (multilevel Fiedler)", ORDERINGS["spectral"].func, graph)
     print(f"  nnz(L) current {base:,}  nd {fill:,}  ratio {base / fill:.1f}x; "
           f"3 DOFs: {fill3:,} ({fill3 / fill:.2f}x the node count, 9x minus the diagonal blocks)")
 
@@ -112,11 +115,12 @@ def main() -> None:
     parser.add_argument("--matrices", type=Path, default=MATRICES,
                         help="folder with published.csv and the .mtx files")
     parser.add_argument("--skip-matrices", action="store_true", help="timing part only")
+    parser.add_argument("--skip-spectral", action="store_true", help="do not time the spectral order")
     args = parser.parse_args()
     if not args.skip_matrices:
         matrix_table(args.matrices)
     available_orderings()
-    mesh_timing(args.nodes)
+    mesh_timing(args.nodes, args.skip_spectral)
 
 
 if __name__ == "__main__":

@@ -18,8 +18,9 @@ position ``p`` (0-based) is
 so that the global term spans about ``D`` units, the range of the local
 term, whatever the part's size (the paper scales the degree term by
 ``floor(k / D)`` instead, which orders the nodes the same way).  Default
-weights ``w1 = 2, w2 = 1`` (Sloan's), chosen by measurement on the shared
-Harwell-Boeing matrices (see ``tests/test_spectral_fill.py``).
+weights ``w1 = w2 = 1``, chosen by measurement on the 77 open Harwell-Boeing
+matrices of the test data: profile geometric mean 0.869x Sloan's with
+(1, 1), 0.873x with (1, 2), 0.884x with (2, 1), 0.909x with (4, 1).
 
 References
 ----------
