@@ -121,6 +121,9 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
     fmt = file_format or detect_format(path)
     if path.stat().st_size == 0:
         raise MeshReadError(f"{path}: the file is empty")
+    from .memory import check_file_fits  # refuse from the header a mesh too big to read
+
+    check_file_fits(path)
     meshio = _meshio()
     captured = io.StringIO()
     node_tags: dict[str, np.ndarray] = {}
@@ -146,6 +149,9 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
     if fmt == "gmsh" and _gmsh_version(path) == "2.2":
         model.file_format = "gmsh22"
     validate_model(model)
+    from .memory import check_fits, estimate_bytes  # before any graph is built
+
+    check_fits(estimate_bytes(model.n_nodes, model.cells_by_type()), what=str(path))
     from .formats import sets_from_fields  # sets written as 0/1 fields where a format has none
 
     return sets_from_fields(_in_tag_order(model, node_tags.get("tags")))

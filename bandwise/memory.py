@@ -1,0 +1,238 @@
+"""Memory needed to read, analyse and renumber a mesh, estimated before the work starts.
+
+A mesh too big for the machine should be refused with the figure, not
+crash half way through with the system swapping.  The estimate adds up the
+arrays bandwise actually allocates, stage by stage (the peak is the
+largest stage plus what stays alive from the earlier ones):
+
+- **read**: meshio's arrays and the model's copies: coordinates twice
+  (``24 n`` bytes each), connectivity twice (``8 k`` bytes per cell of ``k``
+  nodes, int64; a text reader's parse buffers are of the same order);
+- **graph** (:mod:`bandwise.graph`): the node-to-element incidence
+  (``n + 1`` int64 pointers, an int16 block and an int32 row per cell
+  node), the neighbour counts and a marker (``8 n`` each), and the CSR
+  result: ``n + 1`` int64 pointers and ``nnz`` int32 neighbours;
+- **metrics** (:mod:`bandwise.metrics`): about a dozen int64 vectors of
+  the matrix order, at node and at DOF level, plus the part count, which
+  hands the graph to scipy with float64 values (``12 nnz`` bytes);
+- **orderings**: level structures and the graph handed to scipy again
+  (about ``16 n + 12 nnz``).
+
+``nnz`` (twice the number of graph edges) is not known before the graph is
+built; it is taken from the node degree of regular meshes of the main cell
+type (a node of a tetrahedral mesh has about 14 neighbours, of a
+hexahedral one 26: common practice, from structured meshes).
+
+Set the environment variable ``BANDWISE_MEMORY_CHECK=off`` to run anyway.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from dataclasses import asdict, dataclass
+from pathlib import Path
+
+from .errors import InputError
+
+#: Typical number of neighbours of a node, by main cell type (regular meshes).
+DEGREE = {
+    "line": 2, "line3": 2, "triangle": 6, "triangle6": 12, "quad": 8, "quad8": 12, "quad9": 8,
+    "tetra": 14, "tetra10": 27, "hexahedron": 26, "hexahedron20": 44, "hexahedron27": 26,
+    "wedge": 20, "wedge15": 36, "pyramid": 14, "vertex": 0,
+    "unknown": 6,  # a header gives no cell type: the lowest common degree (errs low)
+}
+#: Nodes per cell assumed for cells whose type a header does not give.
+UNKNOWN_CELL_NODES = 4
+#: Bytes of the Python interpreter, numpy, scipy, meshio and numba once loaded.
+BASELINE_BYTES = 180 * 2**20
+
+
+@dataclass(frozen=True)
+class MemoryEstimate:
+    """Estimated bytes of each stage and the peak.
+
+    Attributes
+    ----------
+    read, graph, metrics, orderings
+        Bytes allocated by each stage.
+    peak
+        Largest total alive at once (baseline of the loaded libraries included).
+    nnz
+        Assumed neighbour entries of the node graph.
+    """
+
+    read: int
+    graph: int
+    metrics: int
+    orderings: int
+    peak: int
+    nnz: int
+
+    def to_dict(self) -> dict[str, int]:
+        """The figures as a plain dict (for JSON)."""
+        return asdict(self)
+
+
+def _main_type(n_cells_by_type: dict[str, int]) -> str:
+    counted = {t: c for t, c in n_cells_by_type.items() if t != "vertex" and c}
+    return max(counted, key=counted.get) if counted else "vertex"
+
+
+def _nodes_per_cell(cell_type: str) -> int:
+    from .elements import CORNER_COUNT
+
+    if cell_type in CORNER_COUNT and not cell_type[-1].isdigit():
+        return CORNER_COUNT[cell_type]
+    digits = re.search(r"(\d+)$", cell_type)
+    return int(digits.group(1)) if digits else UNKNOWN_CELL_NODES
+
+
+def memory_estimate(n_nodes: int, n_cells_by_type: dict[str, int], dofs_per_node: int = 3,
+                    orderings: bool = True) -> MemoryEstimate:
+    """Estimate the bytes a mesh needs, stage by stage (see the module notes).
+
+    Parameters
+    ----------
+    n_nodes
+        Number of nodes.
+    n_cells_by_type
+        Cells per meshio cell type; the type ``"unknown"`` counts
+        :data:`UNKNOWN_CELL_NODES` nodes per cell.
+    dofs_per_node
+        DOFs per node for the DOF-level figures.
+    orderings
+        Include the renumbering stage.
+    """
+    n = int(n_nodes)
+    cell_nodes = sum(c * _nodes_per_cell(t) for t, c in n_cells_by_type.items())
+    main = _main_type(n_cells_by_type)
+    nnz = n * DEGREE.get(main, DEGREE["tetra"])
+    read = 2 * 24 * n + 2 * 8 * cell_nodes
+    graph = 8 * (n + 1) + 6 * cell_nodes + 8 * 2 * n + 8 * (n + 1) + 4 * nnz
+    ndof = n * max(dofs_per_node, 1)
+    metrics = 12 * 8 * ndof + 12 * nnz
+    order = (16 * n + 12 * nnz) if orderings else 0
+    alive_after_graph = BASELINE_BYTES + read + 8 * (n + 1) + 4 * nnz
+    peak = max(BASELINE_BYTES + read + graph, alive_after_graph + max(metrics, order))
+    return MemoryEstimate(read, graph, metrics, order, int(peak), int(nnz))
+
+
+def estimate_bytes(n_nodes: int, n_cells_by_type: dict[str, int], dofs_per_node: int = 3,
+                   orderings: bool = True) -> int:
+    """Peak bytes to read, build the graph, measure (and renumber) a mesh.
+
+    >>> estimate_bytes(1_000_000, {"tetra": 5_000_000}) > 10**9
+    True
+    """
+    return memory_estimate(n_nodes, n_cells_by_type, dofs_per_node, orderings).peak
+
+
+def available_bytes() -> int | None:
+    """Memory the machine can give now: ``MemAvailable`` of ``/proc/meminfo``, else sysconf."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    try:
+        return int(os.sysconf("SC_AVPHYS_PAGES")) * int(os.sysconf("SC_PAGE_SIZE"))
+    except (ValueError, OSError, AttributeError):
+        return None
+
+
+def _human(b: int) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
+        if b < 1024 or unit == "TiB":
+            return f"{b:.0f} {unit}" if unit == "B" else f"{b:.1f} {unit}"
+        b /= 1024
+    return f"{b} B"
+
+
+def check_fits(estimate: int, available: int | None = None, what: str = "this mesh") -> None:
+    """Refuse work that will not fit in memory.
+
+    Parameters
+    ----------
+    estimate
+        Bytes needed (:func:`estimate_bytes`).
+    available
+        Bytes available; None reads them from the machine
+        (:func:`available_bytes`).  When neither is known nothing is refused.
+    what
+        Named in the message.
+
+    Raises
+    ------
+    InputError
+        When ``estimate`` exceeds ``available``, with both figures.
+    """
+    if os.environ.get("BANDWISE_MEMORY_CHECK", "").lower() in ("off", "0", "no"):
+        return
+    if available is None:
+        available = available_bytes()
+    if available is None or estimate <= available:
+        return
+    raise InputError(f"{what} needs about {_human(estimate)} of memory and the machine has "
+                     f"{_human(available)} available; free memory or use a bigger machine "
+                     "(BANDWISE_MEMORY_CHECK=off runs anyway)")
+
+
+_GMSH_COUNT = re.compile(rb"\$Nodes\s*\n\s*(\d+)(?:\s+(\d+))?[^\n]*\n")
+_GMSH_ELEMENTS = re.compile(rb"\$Elements\s*\n\s*(\d+)(?:\s+(\d+))?[^\n]*\n")
+_VTU_PIECE = re.compile(rb'NumberOfPoints="(\d+)"\s+NumberOfCells="(\d+)"')
+#: Bytes read from the start of a file to find its counts.
+HEADER_BYTES = 1 << 16
+
+
+def header_counts(path: str | os.PathLike[str]) -> tuple[int, int] | None:
+    """(nodes, cells) from a file's header without reading it, where the format allows.
+
+    gmsh 2.2 and 4.1 (ASCII, and binary: the counts are written as text)
+    give them on the line after ``$Nodes`` / ``$Elements`` when those
+    sections start within the first :data:`HEADER_BYTES`; VTU gives them in
+    its ``Piece`` element.  Other formats: None.
+    """
+    path = Path(path)
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(HEADER_BYTES)
+    except OSError:
+        return None
+    if head.startswith(b"$MeshFormat"):
+        fields = head.split(None, 4)
+        if len(fields) < 4:
+            return None
+        version, binary = fields[1], fields[2] == b"1"
+        four = version.startswith(b"4")
+        if four and binary:  # the counts themselves are binary there
+            return None
+        nodes = _GMSH_COUNT.search(head)
+        if not nodes:
+            return None
+        n = int(nodes.group(2) if four and nodes.group(2) else nodes.group(1))
+        elements = _GMSH_ELEMENTS.search(head)  # often beyond the header: nodes only
+        cells = 0
+        if elements:
+            cells = int(elements.group(2) if four and elements.group(2) else elements.group(1))
+        return n, cells
+    piece = _VTU_PIECE.search(head)
+    if piece and b"UnstructuredGrid" in head:
+        return int(piece.group(1)), int(piece.group(2))
+    return None
+
+
+def check_file_fits(path: str | os.PathLike[str], available: int | None = None) -> None:
+    """Refuse, from its header alone, a file whose mesh will not fit (see :func:`header_counts`).
+
+    The header gives no cell types: cells of unknown type count 4 nodes and
+    a node degree of 6; when the cell count is beyond the header, every node
+    counts as in one cell.  Both err low, so that nothing that fits is refused.
+    """
+    counts = header_counts(path)
+    if counts is None:
+        return
+    n, cells = counts
+    check_fits(estimate_bytes(n, {"unknown": cells or n}), available, what=str(path))

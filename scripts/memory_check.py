@@ -1,0 +1,93 @@
+"""Measured peak memory of read + graph + metrics (+ an ordering) beside bandwise's estimate.
+
+Usage::
+
+    python scripts/memory_check.py MESH [--ordering rcm]
+    python scripts/memory_check.py --nodes 100000        # a generated tetrahedral box
+
+Prints one line: nodes, the estimate (without the loaded libraries), the
+measured growth of the peak resident size (``ru_maxrss``) and of the traced
+numpy allocations (``tracemalloc``; arrays made inside compiled kernels are
+not traced), and the ratio estimate / measured.  A generated mesh is written
+to a temporary file by a separate process first, so that its making does not
+count.
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import resource
+import subprocess
+import sys
+import tempfile
+import tracemalloc
+from pathlib import Path
+
+
+def _rss() -> int:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+
+
+def measure(path: Path, ordering: str | None) -> dict[str, float]:
+    """Peak growth while reading, building the graph, measuring (and ordering) one mesh."""
+    from bandwise.generate import tet_grid
+    from bandwise.graph import node_graph
+    from bandwise.memory import BASELINE_BYTES, memory_estimate
+    from bandwise.meshio_io import read_model, write_model
+    from bandwise.metrics import metrics
+    from bandwise.orderings import ORDERINGS, load_all
+    from bandwise.summary import count_parts
+
+    load_all()
+    with tempfile.TemporaryDirectory() as tmp:  # warm up: imports and compiled kernels
+        warm = Path(tmp) / f"warm{path.suffix}"
+        write_model(tet_grid(4, 4, 4), warm)
+        small = read_model(warm)
+        g = node_graph(small)
+        metrics(g), metrics(g, dofs=3), count_parts(g)
+        if ordering:
+            ORDERINGS[ordering].func(g)
+    del small, g
+    gc.collect()
+    base = _rss()
+    tracemalloc.start()
+    model = read_model(path)
+    graph = node_graph(model)
+    metrics(graph), metrics(graph, dofs=3), count_parts(graph)
+    if ordering:
+        perm = ORDERINGS[ordering].func(graph)
+        metrics(graph, perm, dofs=3)
+    traced = tracemalloc.get_traced_memory()[1]
+    grown = _rss() - base
+    est = memory_estimate(model.n_nodes, model.cells_by_type(), 3, orderings=bool(ordering))
+    estimate = est.peak - BASELINE_BYTES
+    return {"nodes": model.n_nodes, "estimate": estimate, "rss": grown, "traced": traced,
+            "ratio": estimate / max(grown, 1)}
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("mesh", nargs="?", type=Path)
+    parser.add_argument("--nodes", type=int, help="generate a tetrahedral box of about this many nodes")
+    parser.add_argument("--ordering", default=None, help="also run this registered ordering")
+    args = parser.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        path = args.mesh
+        if path is None:
+            if not args.nodes:
+                parser.error("give a mesh file or --nodes")
+            path = Path(tmp) / "box.vtu"
+            code = ("from bandwise.generate import tet_grid, nodes_for_tet_box as k;"
+                    "from bandwise.meshio_io import write_model;"
+                    f"e = k({args.nodes}); write_model(tet_grid(e, e, e), {str(path)!r})")
+            subprocess.run([sys.executable, "-c", code], check=True)
+        r = measure(path, args.ordering)
+    mib = 2**20
+    print(f"nodes {r['nodes']:,}  estimate {r['estimate'] / mib:.1f} MiB  measured peak growth "
+          f"{r['rss'] / mib:.1f} MiB (rss), {r['traced'] / mib:.1f} MiB (traced)  "
+          f"estimate/measured {r['ratio']:.2f}")
+
+
+if __name__ == "__main__":
+    main()
