@@ -23,6 +23,7 @@ import numpy as np
 import pytest
 import scipy.linalg
 import scipy.sparse as sp
+from conftest import shared_path
 from scipy.sparse.csgraph import reverse_cuthill_mckee
 
 from bandwise.caution import CAUTION
@@ -461,3 +462,37 @@ def test_real_findings_marked_on_two_blocks_and_an_orphan(tmp_path):
     assert doc["verdict"]["status"] == "problems found"
     assert "parts.disconnected" in doc["verdict"]["reason"]
     assert doc["mesh"]["parts"] == 2 and doc["mesh"]["orphan_nodes"] == 2
+
+
+# --------------------------------------------------------------------------- matrices
+
+
+def _published(name: str) -> dict[str, int]:
+    """A row of published.csv (SuiteSparse Matrix Collection index, Davis and Hu 2011)."""
+    import csv
+
+    with shared_path("matrices", "published.csv").open() as fh:
+        row = next(r for r in csv.DictReader(fh) if r["name"] == name)
+    return {k: int(v) for k, v in row.items() if k != "name"}
+
+
+@pytest.mark.parametrize("name", ["can_61", "dwt_198"])
+def test_matrix_report_matches_published_figures(runner, cli_app, tmp_path, name):
+    # Duff, Grimes and Lewis, "Sparse matrix test problems", ACM TOMS 15 (1989);
+    # figures from the SuiteSparse index (Davis and Hu, ACM TOMS 38, 2011)
+    pub = _published(name)
+    out = tmp_path / "rep"
+    result = runner.invoke(cli_app, ["report", str(shared_path("matrices", f"{name}.mtx")),
+                                     "--out", str(out), "--method", "rcm"])
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads((out / "report.json").read_text())
+    cur = doc["mesh"]["current_numbering"]["nodes"]
+    assert cur["n_rows"] == pub["n"]
+    assert cur["bandwidth"] == pub["bandwidth_original"]
+    assert doc["mesh"]["parts"] + doc["mesh"]["orphan_nodes"] == pub["components"]
+    assert doc["subject"] == "matrix" and doc["verdict"]["status"] == "not checked"
+    page = (out / "report.html").read_text()
+    p = parse(page)
+    assert "mesh.png" not in [f["file"] for f in doc["figures"]]
+    assert len(p.images) == len(doc["figures"]) == 4              # pattern, curves, chart
+    assert [(q, v) for q, v in _numbers(doc) if repr(v) not in set(p.values)] == []

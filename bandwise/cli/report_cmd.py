@@ -17,11 +17,13 @@ from ..checks.verdict import check_fail_on
 from ..compare import OBJECTIVES, compare_orderings
 from ..dofs import DofLayout, dof_layout
 from ..equations import equation_numbering
-from ..graph import node_graph
+from ..errors import InputError
+from ..graph import graph_from_matrix, node_graph
+from ..matrix_io import is_matrix_file, read_matrix_data, summarise_matrix
 from ..meshio_io import read_model
 from ..model import Model
 from ..progress import Progress, StderrProgress, step
-from ..report import ReportInputs, check_report_folder, write_report
+from ..report import ReportFiles, ReportInputs, check_report_folder, write_report
 from ..report.document import PROBLEMS, verdict
 from ..rigid import zero_energy_modes
 from ..summary import summarise
@@ -92,6 +94,12 @@ def report(
     check_fail_on(fail_on)
     check_report_folder(out)
     progress = StderrProgress()
+    if is_matrix_file(mesh):
+        if support or supports_file:
+            raise InputError("supports apply to a mesh, not to a matrix file")
+        inputs = _matrix_inputs(mesh, method, objective, fail_on, progress)
+        _finish(write_report(out, inputs, progress), inputs)
+        return
     model = read_model(mesh, file_format)
     layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
     supports = _supports(model, layout, support, supports_file)
@@ -111,7 +119,23 @@ def report(
     inputs = ReportInputs(model=model, graph=graph, layout=layout, summary=summary,
                           findings=findings, comparison=comparison, supports=supports,
                           modes=modes, equations=equations, fail_on=fail_on)
-    files = write_report(out, inputs, progress)
+    _finish(write_report(out, inputs, progress), inputs)
+
+
+def _matrix_inputs(path: Path, method: str, objective: str, fail_on: str,
+                   progress: Progress) -> ReportInputs:
+    """The report of a matrix pattern: sizing and orderings, one unknown per row."""
+    with step(progress, "reading the matrix"):
+        data = read_matrix_data(path)
+    graph = graph_from_matrix(data.matrix)
+    comparison = (None if method == "none" else
+                  compare_orderings(graph, method, objective, 1, progress=progress))
+    return ReportInputs(model=None, graph=graph, layout=1, summary=summarise_matrix(data),
+                        comparison=comparison, fail_on=fail_on)
+
+
+def _finish(files: ReportFiles, inputs: ReportInputs) -> None:
+    """Say where the report is and what it concludes; exit 1 on "problems found"."""
     v = verdict(inputs)
     typer.echo(f"report: {files.html}")
     typer.echo(f"data:   {files.json}")

@@ -86,6 +86,8 @@ MARKED_CODES: tuple[tuple[str, str], ...] = (
     ("nodes.coincident", "coincident"), ("joints.", "weak joint"),
     ("nodes.articulation", "weak joint"), ("nodes.", "other"),
 )
+# ``supports.free_modes`` names the suggested holds, not the moving nodes: the
+# moving nodes come from the zero-energy analysis itself (:func:`mode_marks`).
 
 
 def mark_kind(code: str) -> str | None:
@@ -98,6 +100,7 @@ def mark_kind(code: str) -> str | None:
 
 def finding_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
     """Nodes to mark on the mesh picture, per kind, from the findings' node ids."""
+    assert inputs.model is not None
     marks: dict[str, list[NDArray[np.int64]]] = {}
     for f in inputs.findings or ():
         kind = mark_kind(f.code)
@@ -109,7 +112,7 @@ def finding_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
 def mode_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
     """The nodes each free zero-energy mode moves most (labels from the analysis)."""
     modes = inputs.modes
-    if modes is None or not free_mode_count(modes):
+    if modes is None or inputs.model is None or not free_mode_count(modes):
         return {}
     labels = [label for m in modes.modes() for label in m.moving_nodes]
     nodes = node_indices(inputs.model, labels)
@@ -117,7 +120,8 @@ def mode_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
 
 
 def mesh_figure(inputs: ReportInputs) -> Figure:
-    """The mesh coloured by part, findings marked, a free mode drawn as arrows."""
+    """The mesh coloured by part, the nodes of findings and free modes marked."""
+    assert inputs.model is not None
     view = mesh_view(inputs.model, inputs.graph)
     ax = fg.mesh_axes(view, {**finding_marks(inputs), **mode_marks(inputs)})
     shown = (f"{len(view.facets):,} of {view.facets_total:,} facets drawn (evenly spread "
@@ -203,8 +207,9 @@ def comparison_figure(inputs: ReportInputs) -> Figure | None:
 def report_figures(inputs: ReportInputs, progress: Progress | None = None) -> list[Figure]:
     """Render every figure the inputs allow."""
     out = []
-    with step(progress, "drawing the mesh"):
-        out.append(mesh_figure(inputs))
+    if inputs.model is not None:
+        with step(progress, "drawing the mesh"):
+            out.append(mesh_figure(inputs))
     with step(progress, "drawing the matrix pattern and curves"):
         out.append(pattern_figure(inputs))
         out.extend(curve_figures(inputs))

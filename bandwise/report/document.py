@@ -56,32 +56,55 @@ def free_mode_count(modes: Any) -> int | None:
 
 
 def verdict(inputs: ReportInputs) -> dict[str, str]:
-    """One-line verdict: ``ready``, ``problems found`` or ``not checked``, and why."""
+    """One-line verdict: ``ready``, ``problems found`` or ``not checked``, and why.
+
+    The gate is that of ``bandwise check`` (:func:`bandwise.checks.verdict.failing`
+    with ``inputs.fail_on``).  Rigid-body or mechanism modes left free by
+    given supports make the stiffness matrix singular: they fail the verdict
+    too, whether or not the findings already carry them (``supports.free_modes``).
+    """
     reasons = []
     if inputs.findings is not None:
         gate = failing(list(inputs.findings), inputs.fail_on)
         if gate:
             codes = ", ".join(dict.fromkeys(f.code for f in gate))
             reasons.append(f"{len(gate)} finding{'s' * (len(gate) != 1)} at or above "
-                           f"{inputs.fail_on} ({codes})")
-    free = free_mode_count(inputs.modes)
-    if free:
+                           f"{inputs.fail_on}: {codes}")
+    free = body_mode_count(inputs)
+    carried = any(f.code == "supports.free_modes" for f in inputs.findings or ())
+    if free and not carried:
         reasons.append(f"{free} zero-energy mode{'s' * (free != 1)} left by the supports: "
                        "the stiffness matrix is singular")
     if reasons:
         return {"status": PROBLEMS, "reason": "; ".join(reasons)}
     if inputs.findings is None:
-        return {"status": UNCHECKED, "reason": "the mesh checks were not run"}
+        why = ("a matrix has no mesh to check" if inputs.model is None
+               else "the mesh checks were not run")
+        return {"status": UNCHECKED, "reason": why}
     rest = len(inputs.findings)
     tail = f" ({rest} finding{'s' * (rest != 1)} below the gate to review)" if rest else ""
     return {"status": READY, "reason": f"nothing at or above {inputs.fail_on} found by the "
                                        f"checks{tail}"}
 
 
+def body_mode_count(inputs: ReportInputs) -> int:
+    """Rigid-body and mechanism modes left free by given supports (0 without supports)."""
+    if inputs.modes is None or not supports_given(inputs):
+        return 0
+    return int(inputs.modes.n_body_modes)
+
+
+def supports_given(inputs: ReportInputs) -> bool:
+    """True when at least one support was applied."""
+    return inputs.supports is not None and bool(inputs.supports.applied)
+
+
 def not_analysed(inputs: ReportInputs) -> list[str]:
     """Plain statements of what this report does not cover."""
     out = []
-    if inputs.findings is None:
+    if inputs.model is None:
+        out.append("A matrix has no mesh: no mesh checks, no picture of the mesh.")
+    elif inputs.findings is None:
         out.append("Mesh checks (orphan and coincident nodes, element quality, weak "
                    "joints) were not run.")
     if inputs.chosen_perm is None:
@@ -89,8 +112,10 @@ def not_analysed(inputs: ReportInputs) -> list[str]:
                    "numbering only.")
     if inputs.comparison is None:
         out.append("Orderings were not compared.")
-    if inputs.supports is None:
-        out.append("No supports were given: held DOFs and reactions are not counted.")
+    if not supports_given(inputs):
+        out.append("No supports were given: held DOFs and reactions are not counted"
+                   + (", and the zero-energy modes are those of the free mesh."
+                      if inputs.modes is not None else "."))
     if inputs.modes is None:
         out.append("Zero-energy (rigid-body) modes were not analysed.")
     if inputs.equations is None:
@@ -156,7 +181,7 @@ def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None =
     """
     s = inputs.summary
     supports = None
-    if inputs.supports is not None:
+    if supports_given(inputs):
         supports = {"applied": _as_dict(inputs.supports),
                     "held_dofs": int(inputs.supports.n_fixed_dofs),
                     "supported_nodes": int(inputs.supports.n_supported_nodes)}
@@ -165,6 +190,7 @@ def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None =
         "created": inputs.created.isoformat(),
         "file": s.source,
         "file_name": Path(s.source).name if s.source else "",
+        "subject": inputs.subject,
         "caution": CAUTION,
         "verdict": verdict(inputs),
         "mesh": plain(s.to_dict()),

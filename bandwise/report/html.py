@@ -204,9 +204,9 @@ def header_section(doc: Mapping[str, Any]) -> str:
     ]
     return "\n".join([
         "<header>",
-        f"<h1>Solver readiness: {esc(doc['file_name'] or 'mesh')}</h1>",
-        ('<p class="sub">Pre-run check, sizing and numbering of a finite-element mesh '
-        "for a direct solver.</p>"),
+        f"<h1>Solver readiness: {esc(doc['file_name'] or doc['subject'])}</h1>",
+        ('<p class="sub">Pre-run check, sizing and numbering of a finite-element '
+         f"{esc(doc['subject'])} for a direct solver.</p>"),
         table(facts, keys=["", "nodes"]),
         (f'<div class="verdict {css}">{symbol} Verdict: {esc(v["status"])} '
         f'&mdash; {esc(v["reason"])}</div>'),
@@ -219,7 +219,8 @@ def mesh_section(doc: Mapping[str, Any], figures_html: str) -> str:
     """What the mesh is made of, with its picture."""
     mesh = dict(doc["mesh"])
     mesh.pop("current_numbering", None)
-    return "\n".join(["<section id='mesh'>", "<h2>The mesh</h2>", facts_table(mesh),
+    return "\n".join(["<section id='mesh'>", f"<h2>The {esc(doc['subject'])}</h2>",
+                      facts_table(mesh),
                       figures_html, "</section>"])
 
 
@@ -363,7 +364,7 @@ def supports_section(doc: Mapping[str, Any], figures_html: str) -> str:
                           ["supported nodes", sup["supported_nodes"]]]))
     modes = doc.get("modes")
     if modes is not None:
-        out.append(modes_html(modes))
+        out.append(modes_html(modes, sup is not None))
     equations = doc.get("equations")
     if equations is not None:
         out.append(equations_html(equations))
@@ -396,14 +397,19 @@ def equations_html(eq: Mapping[str, Any]) -> str:
     return "\n".join(out)
 
 
-def modes_html(modes: Mapping[str, Any]) -> str:
+def modes_html(modes: Mapping[str, Any], supported: bool) -> str:
     """Zero-energy modes: totals, each part, each mode in words, suggested holds."""
     out = ["<h3>Zero-energy modes</h3>"]
     total = modes.get("total", 0)
-    out.append("<p>" + ("No zero-energy mode: the supports hold every part."
-                        if not total else
-                        f"{number(total)} zero-energy mode(s): the stiffness matrix is "
-                        "singular with these supports.") + "</p>")
+    if not supported:
+        lead = (f"No supports were given: the free mesh has {number(total)} zero-energy "
+                "mode(s), as every unsupported body does; give the supports to check them.")
+    elif total:
+        lead = (f"{number(total)} zero-energy mode(s) left by the supports: the stiffness "
+                "matrix is singular.")
+    else:
+        lead = "No zero-energy mode: the supports hold every part."
+    out.append(f"<p>{lead}</p>")
     scalars = {k: v for k, v in modes.items()
                if not isinstance(v, (list, dict)) and v is not None and k != "total"}
     out.append(facts_table({"total": total, **scalars}))

@@ -27,7 +27,9 @@ class ReportInputs:
     Attributes
     ----------
     model, graph, layout, summary
-        The mesh, its node graph, its DOFs and its sizing summary (always present).
+        The mesh (None for a matrix file: no mesh picture), its node graph (or
+        the matrix pattern's graph), its DOFs (a layout, or 1 per matrix row)
+        and its sizing summary.
     findings
         Results of the mesh checks (:class:`~bandwise.checks.findings.Finding`),
         or None when the checks were not run.
@@ -49,9 +51,9 @@ class ReportInputs:
         Time stamp written in the report (UTC).
     """
 
-    model: Model
+    model: Model | None
     graph: NodeGraph
-    layout: DofLayout
+    layout: DofLayout | int
     summary: MeshSummary
     findings: Sequence[Any] | None = None
     perm: NDArray[np.integer] | None = None
@@ -62,6 +64,11 @@ class ReportInputs:
     equations: Any | None = None
     fail_on: str = "error"
     created: dt.datetime = field(default_factory=_now)
+
+    @property
+    def subject(self) -> str:
+        """``"mesh"``, or ``"matrix"`` when the report is of a matrix pattern."""
+        return "matrix" if self.model is None else "mesh"
 
     @property
     def chosen_perm(self) -> NDArray[np.integer] | None:
