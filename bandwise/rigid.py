@@ -904,8 +904,8 @@ def _moving_nodes(ctx: _Context, part_bodies: NDArray[np.int64], cols: NDArray[n
         d = ctx.pts[node] - ctx.frames.centroid[part_bodies][body]
         u = t[body] + np.cross(q[body], d)
         amp = np.linalg.norm(u, axis=1) + np.linalg.norm(q[body], axis=1) * 1e-9
-    if amp.size == 0:
-        return ()
+    if amp.size == 0 or np.ptp(amp) <= 1e-9 * amp.max():
+        return ()                                   # every node moves alike
     k = min(MOVING_NODES, amp.size)
     top = np.argpartition(-amp, k - 1)[:k]
     top = top[np.argsort(-amp[top], kind="stable")]

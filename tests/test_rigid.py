@@ -269,4 +269,7 @@ def test_json_form_has_totals_per_part_and_modes() -> None:
     assert doc["total"] == 3 and doc["rigid"] == 3 and doc["mechanisms"] == 0
     part = doc["per_part"][0]
     assert part["modes"] == 3 and len(part["details"]) == 3
-    assert all(d["moving_nodes"] for d in part["details"])
+    assert all(d["moving_nodes"] for d in part["details"])     # rotations: the far nodes
+    free = _analyse(hex_grid(2, 2, 2))[0]
+    shift = [m for m in free.modes() if m.description.startswith("translation")]
+    assert len(shift) == 3 and all(m.moving_nodes == () for m in shift)  # all alike

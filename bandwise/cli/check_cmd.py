@@ -34,6 +34,15 @@ from . import (
     emit_json,
     guarded,
 )
+from .support_options import (
+    DofMapOpt,
+    StiffnessCheckOpt,
+    SupportFileOpt,
+    SupportOpt,
+    analyse_supports,
+    merged_findings,
+    support_request,
+)
 
 FailOnOpt = Annotated[str, typer.Option(
     "--fail-on", help=f"Lowest severity that makes the exit code 1: {' | '.join(FAIL_ON)}.")]
@@ -121,6 +130,10 @@ def check(
     fail_on: FailOnOpt = "error",
     tolerance: ToleranceOpt = None,
     relative_tolerance: RelToleranceOpt = 1e-3,
+    support: SupportOpt = None,
+    supports_file: SupportFileOpt = None,
+    stiffness_check: StiffnessCheckOpt = False,
+    dof_map: DofMapOpt = None,
 ) -> None:
     """Size up and check meshes before a run: parts, orphans, coincident nodes, joints, elements.
 
@@ -130,6 +143,8 @@ def check(
     check_fail_on(fail_on)
     if _matrix_check(files, as_json):
         return
+    request = support_request(support, supports_file, stiffness_check, dof_map, len(files))
+    reports = []
     options = CheckOptions(tolerance=tolerance, relative_tolerance=relative_tolerance)
     progress = StderrProgress()
     results = []
@@ -139,12 +154,14 @@ def check(
         layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
         graph = node_graph(model)
         results.append(summarise(model, layout, graph=graph, progress=progress))
-        all_findings.append(run_checks(model, graph, options, progress=progress))
+        reports.append(analyse_supports(model, layout, graph, request, progress))
+        all_findings.append(merged_findings(run_checks(model, graph, options, progress=progress),
+                                            reports[-1]))
     gate_failed = any(failing(f, fail_on) for f in all_findings)
     if as_json:
-        docs = [{**r.to_dict(), "verdict": verdict(f, fail_on),
+        docs = [{**r.to_dict(), **rep.to_json(), "verdict": verdict(f, fail_on),
                  "findings": [x.to_dict() for x in f]}
-                for r, f in zip(results, all_findings)]
+                for r, f, rep in zip(results, all_findings, reports)]
         emit_json({"bandwise_version": __version__, "caution": CAUTION,
                    "fail_on": fail_on, "meshes": docs})
     else:
@@ -158,6 +175,8 @@ def check(
             typer.echo(summary_text(s))
             typer.echo("")
             typer.echo(findings_text(f))
+            typer.echo("")
+            typer.echo(reports[k].text())
         typer.echo("")
         typer.echo(CAUTION)
     if gate_failed:
