@@ -82,7 +82,7 @@ def best_profile(graph: NodeGraph, orderings: dict) -> tuple[int, str]:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
                 p = info.func(graph)
-        except Exception as exc:  # another ordering failing must not stop the table
+        except Exception as exc:  # noqa: BLE001 - one failing ordering must not stop the table
             print(f"    ({info.name} failed: {exc})")
             continue
         prof = metrics(graph, p).profile

@@ -46,7 +46,8 @@ INACTIVE, PREACTIVE, ACTIVE, POSTACTIVE = 0, 1, 2, 3
 # The heap keeps a copy of each entry's priority beside its node (``hkey``), so
 # that sifting touches only the heap's own small arrays, not the per-node ones.
 # Its operations are inlined: a compiled call per operation (with its array
-# reference counting) would cost several times the operation itself.
+# reference counting) would cost several times the operation itself.  Raises
+# are batched per step (:func:`_bump`, :func:`_settle`).
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -118,57 +119,86 @@ def _pop(heap, hkey, where, size):  # pragma: no cover - compiled
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
-def _raise(heap, hkey, where, prio, v, amount):  # pragma: no cover - compiled
-    """Add ``amount`` (>= 0) to the priority of ``v``, keeping the heap in order."""
+def _bump(prio, touched, count, v, amount):  # pragma: no cover - compiled
+    """Raise the priority of ``v`` now and note it for the heap (repeats are harmless)."""
     prio[v] += amount
-    i = where[v]
-    if i >= 0:
-        hkey[i] = prio[v]
-        _sift_up(heap, hkey, where, i)
+    touched[count] = v
+    return count + 1
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _settle(heap, hkey, where, prio, status, touched, count, size):  # pragma: no cover
+    """Bring the heap up to date with the nodes raised in one step; returns its size.
+
+    The order out of the heap (priority, then lowest node) is a total order,
+    so sifting once per batch gives the same numbering as sifting after
+    every raise; a node noted twice is sifted twice, the second time at no
+    cost.
+    """
+    for c in range(count):
+        v = touched[c]
+        i = where[v]
+        if i >= 0:
+            hkey[i] = prio[v]
+            _sift_up(heap, hkey, where, i)
+        elif status[v] != POSTACTIVE:
+            size = _push(heap, hkey, where, prio, size, v)
+    return size
 
 
 @numba.njit(cache=True, nogil=True)
-def _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, out,
+def _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, touched, out,
                         start):  # pragma: no cover - compiled
-    """Sloan's numbering loop from ``s`` (priorities set); writes ``out[start:]``."""
+    """Sloan's numbering loop from ``s`` (priorities set); writes ``out[start:]``.
+
+    Each step: take the node of highest priority; if it was preactive, its
+    neighbours lose one from their current degree (+W2) and inactive ones
+    become preactive; number it; each preactive neighbour becomes active
+    (+W2) and so do its own neighbours' priorities (+W2), inactive ones
+    becoming preactive (Sloan 1986, steps 6-9).
+    """
     size = _push(heap, hkey, where, prio, 0, s)
     status[s] = PREACTIVE
+    room = touched.size
     k = start
     while size > 0:
         i, size = _pop(heap, hkey, where, size)
+        count = 0
         if status[i] == PREACTIVE:
             for t in range(indptr[i], indptr[i + 1]):
                 j = indices[t]
                 if status[j] == POSTACTIVE:
                     continue
-                _raise(heap, hkey, where, prio, j, w2)
+                count = _bump(prio, touched, count, j, w2)
                 if status[j] == INACTIVE:
                     status[j] = PREACTIVE
-                    size = _push(heap, hkey, where, prio, size, j)
         out[k] = i
-        k += 1
         status[i] = POSTACTIVE
         for t in range(indptr[i], indptr[i + 1]):
             j = indices[t]
             if status[j] != PREACTIVE:
                 continue
+            if count + indptr[j + 1] - indptr[j] + 1 > room:
+                size = _settle(heap, hkey, where, prio, status, touched, count, size)
+                count = 0
             status[j] = ACTIVE
-            _raise(heap, hkey, where, prio, j, w2)
+            count = _bump(prio, touched, count, j, w2)
             for r in range(indptr[j], indptr[j + 1]):
                 m = indices[r]
                 if status[m] == POSTACTIVE:
                     continue
-                _raise(heap, hkey, where, prio, m, w2)
+                count = _bump(prio, touched, count, m, w2)
                 if status[m] == INACTIVE:
                     status[m] = PREACTIVE
-                    size = _push(heap, hkey, where, prio, size, m)
+        size = _settle(heap, hkey, where, prio, status, touched, count, size)
+        k += 1
     return k - start
 
 
 @numba.njit(cache=True, nogil=True)
 def _sloan_part(indptr, indices, deg, low, w1, w2, key, use_key, seen, stamp, order, start,
-                trees, tree_ptr, cand, prio, status, heap, hkey,
-                where):  # pragma: no cover - compiled
+                trees, tree_ptr, cand, prio, status, heap, hkey, where,
+                touched):  # pragma: no cover - compiled
     """Sloan numbering of the part of ``low`` into ``order[start:]``; returns ``(size, stamp)``."""
     if use_key:
         stamp += 1
@@ -189,7 +219,8 @@ def _sloan_part(indptr, indices, deg, low, w1, w2, key, use_key, seen, stamp, or
             for a in range(level_ptr[lvl], level_ptr[lvl + 1]):
                 w = nodes[a]
                 prio[w] = w1 * lvl - w2 * (deg[w] + 1)
-    _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, order, start)
+    _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, touched,
+                        order, start)
     return size, stamp
 
 
@@ -210,6 +241,7 @@ def _sloan_parts(indptr, indices, w1, w2, key, use_key):  # pragma: no cover - c
     heap = np.empty(n, dtype=np.int64)
     hkey = np.empty(n, dtype=np.float64)
     where = np.full(n, -1, dtype=np.int64)
+    touched = np.empty(n, dtype=np.int64)
     placed = 0
     stamp = 0
     for v in _nodes_by_degree(deg):
@@ -217,7 +249,7 @@ def _sloan_parts(indptr, indices, w1, w2, key, use_key):  # pragma: no cover - c
             continue
         size, stamp = _sloan_part(indptr, indices, deg, v, w1, w2, key, use_key, seen, stamp,
                                   order, placed, trees, tree_ptr, cand, prio, status, heap, hkey,
-                                  where)
+                                  where, touched)
         placed += size
     return order
 
