@@ -220,3 +220,60 @@ def test_check_reports_a_matrix_file(runner, cli_app):
     # bcsstk01: bandwidth 35 in the file's order (published.csv)
     line = next(ln for ln in text.stdout.splitlines() if ln.startswith("bandwidth"))
     assert line.split()[1:3] == ["35", "35"]
+
+
+def _boeing_file(path, mxtype, ptr, ind, vals, rutherford=False):
+    """Write a tiny fixed-format file laid out as Duff, Grimes and Lewis (1989) describe.
+
+    Pointers as (4I3), indices as (3I3), values as (2D12.4): the D exponent
+    and narrow fields a Fortran writer may use.
+    """
+    def rows(items, per_line, fmt):
+        return ["".join(fmt(x) for x in items[k:k + per_line])
+                for k in range(0, len(items), per_line)]
+
+    p = rows(ptr, 4, lambda x: f"{x:3d}")
+    i = rows(ind, 3, lambda x: f"{x:3d}")
+    v = rows(vals, 2, lambda x: f"{x:12.4E}".replace("E", "D")) if vals else []
+    counts = [len(p) + len(i) + len(v), len(p), len(i), len(v)] + ([] if rutherford else [0])
+    n = len(ptr) - 1
+    lines = ["tiny test matrix".ljust(72) + "TINY".ljust(8),
+             "".join(f"{c:14d}" for c in counts),
+             mxtype.ljust(14) + "".join(f"{c:14d}" for c in (n, n, len(ind), 0)),
+             "(4I3)".ljust(16) + "(3I3)".ljust(16) + ("(2D12.4)" if vals else "").ljust(20),
+             *p, *i, *v]
+    path.write_text("\n".join(lines) + "\n")
+    return path
+
+
+# A = [[1, 0, 2], [3, 4, 0], [0, 5, 0]], stored column by column, 1-based
+TINY_PTR, TINY_IND, TINY_VAL = [1, 3, 5, 6], [1, 2, 2, 3, 1], [1.0, 3.0, 4.0, 5.0, 2.0]
+TINY = np.array([[1.0, 0.0, 2.0], [3.0, 4.0, 0.0], [0.0, 5.0, 0.0]])
+
+
+def test_unsymmetric_fixed_format_files(tmp_path):
+    rua = read_matrix_data(_boeing_file(tmp_path / "t.rua", "RUA", TINY_PTR, TINY_IND, TINY_VAL))
+    assert rua.symmetry == "general" and rua.field == "real"
+    assert np.array_equal(rua.matrix.toarray(), TINY)
+    pua = read_matrix_data(_boeing_file(tmp_path / "t.pua", "PUA", TINY_PTR, TINY_IND, []))
+    assert pua.field == "pattern"
+    assert np.array_equal(pua.matrix.toarray(), TINY != 0)
+    rb = read_matrix_data(_boeing_file(tmp_path / "t.rb", "rua", TINY_PTR, TINY_IND, TINY_VAL,
+                                       rutherford=True))
+    assert np.array_equal(rb.matrix.toarray(), TINY)
+    # written out, the unsymmetric matrix stays general, every entry listed
+    write_matrix_market(tmp_path / "t.mtx", rua.matrix)
+    assert np.array_equal(read_matrix(tmp_path / "t.mtx").toarray(), TINY)
+    assert "general" in (tmp_path / "t.mtx").read_text().splitlines()[0]
+
+
+def test_skew_symmetric_file_is_mirrored_with_the_sign(tmp_path):
+    # skew-symmetric (type Z): a_ji = -a_ij, the lower triangle stored
+    skew = read_matrix(_boeing_file(tmp_path / "t.rza", "RZA", [1, 2, 3, 3], [2, 3], [1.5, -2.0]))
+    assert np.array_equal(skew.toarray(), [[0, -1.5, 0], [1.5, 0, 2.0], [0, -2.0, 0]])
+
+
+def test_elemental_files_are_refused_in_one_line(tmp_path):
+    path = _boeing_file(tmp_path / "t.rsa", "RSE", TINY_PTR, TINY_IND, TINY_VAL)
+    with pytest.raises(MeshReadError, match="elemental"):
+        read_matrix(path)
