@@ -257,6 +257,19 @@ def test_mixed_dof_counts_including_nodes_without_dofs():
     assert factor_flops(graph, perm, d) == int((low.sum(axis=0) ** 2).sum())
 
 
+def test_dof_layout_of_a_solid_gives_the_three_dof_count():
+    # A 3D solid carries ux uy uz at every node (common practice, bandwise.dofs): the
+    # layout-driven count equals the uniform 3-DOF count, 9 nnz(L) - 3n (module formula,
+    # checked against kron above).
+    from bandwise.dofs import dof_layout
+
+    model = generate.scrambled(generate.tet_grid(4, 3, 3), 1)
+    graph = node_graph(model)
+    perm = nested_dissection(graph)
+    assert cholesky_nnz(graph, perm, dof_layout(model)) == cholesky_nnz(graph, perm, 3)
+    assert cholesky_nnz(graph, perm, 3) == 9 * cholesky_nnz(graph, perm) - 3 * graph.n
+
+
 def test_fill_of_a_tridiagonal_and_a_full_matrix():
     # Closed forms: a tridiagonal (path) matrix in path order has no fill, nnz(L) = 2n - 1;
     # a full matrix has n(n+1)/2 (George and Liu 1981, ch. 2).
