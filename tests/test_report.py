@@ -496,3 +496,20 @@ def test_matrix_report_matches_published_figures(runner, cli_app, tmp_path, name
     assert "mesh.png" not in [f["file"] for f in doc["figures"]]
     assert len(p.images) == len(doc["figures"]) == 4              # pattern, curves, chart
     assert [(q, v) for q, v in _numbers(doc) if repr(v) not in set(p.values)] == []
+
+
+def test_mesh_axes_draws_given_mode_arrows():
+    """A displacement field given per node is drawn as arrows, projected to the picture."""
+    from matplotlib.quiver import Quiver
+
+    from bandwise.report.figures import mesh_axes
+
+    model = hex_grid(3, 3, 3)
+    view = mesh_view(model, node_graph(model))
+    nodes = np.arange(model.n_nodes)
+    spin = np.cross([0.0, 0.0, 1.0], model.points - model.points.mean(axis=0))  # about z
+    ax = mesh_axes(view, arrows=(nodes, spin))
+    quivers = [c for c in ax.collections if isinstance(c, Quiver)]
+    assert len(quivers) == 1 and quivers[0].N == model.n_nodes
+    uv = np.column_stack([quivers[0].U, quivers[0].V])
+    assert np.allclose(uv / np.abs(uv).max(), (spin @ view.screen) / np.abs(spin @ view.screen).max())

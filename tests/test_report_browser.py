@@ -19,13 +19,17 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from scipy.sparse.csgraph import reverse_cuthill_mckee
 
+from bandwise.checks import run_checks
+from bandwise.compare import compare_orderings
 from bandwise.dofs import dof_layout
+from bandwise.equations import equation_numbering
 from bandwise.generate import scrambled, tet_grid
 from bandwise.graph import node_graph
 from bandwise.report import ReportInputs, write_report
+from bandwise.rigid import zero_energy_modes
 from bandwise.summary import summarise
+from bandwise.supports import apply_supports, parse_support
 
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
          "--disable-background-networking", "--disable-component-update", "--disable-sync"]
@@ -66,13 +70,19 @@ def _run(chromium: str, profile: Path, *args: str) -> subprocess.CompletedProces
 
 @pytest.fixture(scope="module")
 def report(tmp_path_factory) -> Path:
+    """Every section: checks, two orderings compared, one support, modes and equations."""
     model = scrambled(tet_grid(10, 7, 4, h=4.0), seed=11)
-    model.source, model.file_format = "frame_block.msh", "gmsh"
+    model.source, model.file_format = "bracket_block.msh", "gmsh"
     graph = node_graph(model)
     layout = dof_layout(model)
-    perm = reverse_cuthill_mckee(graph.to_scipy(), symmetric_mode=True)  # stand-in ordering
-    inputs = ReportInputs(model, graph, layout, summarise(model, layout, graph),
-                          findings=[], perm=perm, method="rcm (scipy stand-in)")
+    supports = apply_supports(model, layout, [parse_support("plane x=0:ux,uy,uz")])
+    comparison = compare_orderings(graph, "rcm,sloan", "profile", layout)
+    perm = comparison.best.perm
+    inputs = ReportInputs(
+        model, graph, layout, summarise(model, layout, graph),
+        findings=run_checks(model, graph), comparison=comparison,
+        supports=supports, modes=zero_energy_modes(model, layout, supports, graph),
+        equations=equation_numbering(layout, supports.fixed, perm, graph))
     return write_report(tmp_path_factory.mktemp("browser") / "report", inputs).html
 
 
@@ -87,11 +97,21 @@ def _screenshot(chromium: str, page: Path, tmp: Path, name: str) -> np.ndarray:
 
 def test_dom_has_every_section_and_image(chromium, report, tmp_path):
     dom = _run(chromium, tmp_path / "profile", "--dump-dom", report.as_uri()).stdout.decode()
-    for section in ("findings", "mesh", "sizing", "not-analysed"):
+    for section in ("findings", "mesh", "sizing", "orderings", "supports", "not-analysed"):
         assert f'id="{section}"' in dom
     images = re.findall(r'<img src="data:image/png;base64,([A-Za-z0-9+/=]+)"', dom)
-    assert len(images) == 4 and all(len(b) > 5000 for b in images)
-    assert "Verdict: ready" in dom
+    assert len(images) == 5 and all(len(b) > 5000 for b in images)
+    assert "Verdict: ready" in dom                    # a fully held face leaves no mode
+    assert "No zero-energy mode" in dom
+
+
+def test_prints_to_several_pdf_pages(chromium, report, tmp_path):
+    pdf = tmp_path / "report.pdf"
+    _run(chromium, tmp_path / "profile-pdf", f"--print-to-pdf={pdf}", "--no-pdf-header-footer",
+         report.as_uri())
+    data = pdf.read_bytes()
+    assert data[:5] == b"%PDF-"
+    assert len(re.findall(rb"/Type\s*/Page\b", data)) >= 3      # A4 pages, figures kept whole
 
 
 def test_screenshot_shows_the_images(chromium, report, tmp_path):
