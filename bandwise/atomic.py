@@ -40,12 +40,25 @@ def atomic_folder(path: str | os.PathLike[str]) -> Iterator[Path]:
         raise MeshWriteError(f"{path}: cannot write in {folder}: {exc.strerror}") from None
     try:
         yield tmp
-        for produced in sorted(tmp.iterdir()):
-            os.replace(produced, folder / produced.name)
+        # on disk before any rename; companions first, the named file last
+        produced = sorted(tmp.iterdir(), key=lambda p: (p.name == path.name, p.name))
+        for item in produced:
+            _fsync(item)
+        for item in produced:
+            os.replace(item, folder / item.name)
     except OSError as exc:
         raise MeshWriteError(f"{path}: write failed: {exc.strerror or exc}") from None
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
+
+
+def _fsync(path: Path) -> None:
+    """Flush a finished file to disk, so that a crash after the rename leaves it whole."""
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
 
 
 def write_text_atomic(path: str | os.PathLike[str], text: str) -> None:
