@@ -14,6 +14,7 @@ import dataclasses
 from dataclasses import dataclass
 from typing import Any
 
+import numba
 import numpy as np
 from numpy.typing import NDArray
 from scipy import sparse
@@ -46,14 +47,29 @@ def shortest_edge(graph: NodeGraph, points: NDArray[np.float64]) -> float:
 
     Returns 0.0 when no element joins two distinct points.
     """
-    rows = np.repeat(np.arange(graph.n, dtype=np.int64), np.diff(graph.indptr))
-    upper = graph.indices > rows
-    a, b = rows[upper], graph.indices[upper].astype(np.int64)
-    if a.size == 0:
+    if graph.n == 0 or graph.indices.size == 0:
         return 0.0
-    d = np.linalg.norm(points[a] - points[b], axis=1)
-    d = d[d > 0]
-    return float(d.min()) if d.size else 0.0
+    best = _shortest_edge_kernel(graph.indptr, graph.indices,
+                                 np.ascontiguousarray(points, dtype=np.float64))
+    return float(best) if np.isfinite(best) else 0.0
+
+
+@numba.njit(cache=True, nogil=True)
+def _shortest_edge_kernel(indptr, indices, points):  # pragma: no cover - compiled
+    best = np.inf
+    dim = points.shape[1]
+    for v in range(indptr.size - 1):
+        for t in range(indptr[v], indptr[v + 1]):
+            u = indices[t]
+            if u <= v:
+                continue
+            d2 = 0.0
+            for c in range(dim):
+                x = points[u, c] - points[v, c]
+                d2 += x * x
+            if 0.0 < d2 < best:
+                best = d2
+    return np.sqrt(best)
 
 
 def resolve_tolerance(graph: NodeGraph, points: NDArray[np.float64],

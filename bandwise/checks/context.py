@@ -5,9 +5,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
+import numba
 import numpy as np
 from numpy.typing import NDArray
-from scipy.sparse.csgraph import connected_components
 
 from ..elements import cell_dimension
 from ..errors import InputError
@@ -129,18 +129,24 @@ class CheckContext:
 
     @cached_property
     def parts(self) -> tuple[int, NDArray[np.int64]]:
-        """Connected parts of the node graph: (count, part of each node).
+        """Connected parts through element coupling: (count, part of each node).
 
         Parts are numbered by decreasing node count; nodes no coupling cell
-        references get ``-1``.
+        references get ``-1``.  (A union-find pass over the cells: the same
+        parts as the connected components of the node graph.)
         """
-        n = self.graph.n
-        _, comp = connected_components(self.graph.to_scipy(), directed=False)
+        n = self.model.n_nodes
+        parent = np.arange(n, dtype=np.int64)
+        for b, use in zip(self.model.cells, self.coupling):
+            if use.any():
+                _union_cells(np.ascontiguousarray(b.data, dtype=np.int64),
+                             np.flatnonzero(use).astype(np.int64), parent)
         coupled = self.references > 0
         part = np.full(n, -1, dtype=np.int64)
         if not coupled.any():
             return 0, part
-        ids, compact = np.unique(comp[coupled], return_inverse=True)
+        roots = _roots(parent)
+        ids, compact = np.unique(roots[coupled], return_inverse=True)
         sizes = np.bincount(compact)
         rank = np.empty(len(ids), dtype=np.int64)
         rank[np.argsort(-sizes, kind="stable")] = np.arange(len(ids))
@@ -153,3 +159,36 @@ class CheckContext:
         opt = self.options
         return resolve_tolerance(self.graph, self.model.points, opt.tolerance,
                                  opt.relative_tolerance)
+
+
+@numba.njit(cache=True, nogil=True)
+def _union_cells(data, rows, parent):  # pragma: no cover - compiled
+    """Join the nodes of every listed cell in a union-find forest."""
+    for ri in range(rows.size):
+        e = rows[ri]
+        a = data[e, 0]
+        while parent[a] != a:
+            parent[a] = parent[parent[a]]
+            a = parent[a]
+        for k in range(1, data.shape[1]):
+            b = data[e, k]
+            while parent[b] != b:
+                parent[b] = parent[parent[b]]
+                b = parent[b]
+            if a != b:
+                if a < b:
+                    parent[b] = a
+                else:
+                    parent[a] = b
+                    a = b
+
+
+@numba.njit(cache=True, nogil=True)
+def _roots(parent):  # pragma: no cover - compiled
+    out = np.empty(parent.size, dtype=np.int64)
+    for v in range(parent.size):
+        r = v
+        while parent[r] != r:
+            r = parent[r]
+        out[v] = r
+    return out

@@ -18,11 +18,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 from numpy.typing import NDArray
 
 from ..elements import CORNER_COUNT
-from ..topology import corner_shape, group_node_sets
+from ..topology import corner_shape
 from . import measures
 from .context import CheckContext
 from .findings import Finding
@@ -72,13 +73,17 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
         s = np.sort(b.data, axis=1)
         rep = (s[:, 1:] == s[:, :-1]).any(axis=1)
         repeated.add(bi, rep, rows)
-        k = b.data.shape[1] if shape == "polygon" else CORNER_COUNT[b.type]
-        p = ctx.model.points[b.data[:, :k]]
-        if p.shape[2] == 2:
-            p = np.concatenate([p, np.zeros(p.shape[:2] + (1,))], axis=2)
-        measure, corners = _measure(shape, p, planar)
-        size = measures.cell_size(p)
         dim = ctx.dims[bi]
+        if dim == 3:
+            measure, low, size = measures.solid_measures(shape, ctx.model.points, b.data)
+            corners = low[:, None]
+        else:
+            k = b.data.shape[1] if shape == "polygon" else CORNER_COUNT[b.type]
+            p = ctx.model.points[b.data[:, :k]]
+            if p.shape[2] == 2:
+                p = np.concatenate([p, np.zeros(p.shape[:2] + (1,))], axis=2)
+            measure, corners = _measure(shape, p, planar)
+            size = measures.cell_size(p)
         is_zero = np.abs(measure) <= ZERO_MEASURE * np.maximum(size, 1e-300) ** dim
         zero.add(bi, is_zero & ~rep, rows)
         if corners is None or not ctx.coupling[bi].any():
@@ -121,7 +126,7 @@ def _measure(shape: str, p: NDArray[np.float64], planar: bool,
         if planar:
             return measures.plane_signed_area(p), measures.plane_corner_turns(p)
         return measures.surface_area(p), None
-    return measures.solid_volume(shape, p), measures.corner_jacobians(shape, p)
+    raise ValueError(f"not a line or plane cell: {shape}")
 
 
 def _emit(out: list[Finding], ctx: CheckContext, hits: _Hits, code: str, severity: str,
@@ -133,29 +138,56 @@ def _emit(out: list[Finding], ctx: CheckContext, hits: _Hits, code: str, severit
 
 
 def _duplicates(ctx: CheckContext) -> list[Finding]:
-    """Coupling elements with the same node set as an earlier one (over all blocks)."""
+    """Coupling elements with the same node set as an earlier one (over all blocks).
+
+    Two cells with one node set have the same facets, hence the same
+    smallest facet group id: only cells sharing it are compared.
+    """
+    t = ctx.table
     hits = _Hits.empty()
-    by_width: dict[int, list[tuple[int, NDArray[np.int64]]]] = {}
-    for bi, (b, use) in enumerate(zip(ctx.model.cells, ctx.coupling)):
-        if use.any():
-            by_width.setdefault(b.data.shape[1], []).append((bi, np.flatnonzero(use)))
-    for entries in by_width.values():
-        data = np.concatenate([ctx.model.cells[bi].data[r] for bi, r in entries])
-        blk = np.concatenate([np.full(r.size, bi, dtype=np.int64) for bi, r in entries])
-        row = np.concatenate([r for _, r in entries])
-        group, size = group_node_sets(data)
-        if size.max(initial=0) < 2:
-            continue
-        order = np.argsort(group, kind="stable")
-        later = np.zeros(len(group), dtype=bool)
-        later[order[1:]] = group[order[1:]] == group[order[:-1]]
-        for bi in np.unique(blk[later]):
-            sel = later & (blk == bi)
-            hits.add(int(bi), np.ones(int(sel.sum()), dtype=bool), row[sel])
+    smallest = [t.group[t.starts[e]:t.starts[e + 1]].reshape(len(rows), -1).min(axis=1)
+                for e, rows in enumerate(t.entry_rows)]
+    if not smallest:
+        return []
+    key = np.concatenate(smallest)
+    width = max(ctx.model.cells[b].data.shape[1] for b in t.entry_block)
+    rows_sorted = np.full((len(key), width), -1, dtype=np.int64)
+    at = 0
+    for b, rows in zip(t.entry_block, t.entry_rows):
+        d = np.sort(ctx.model.cells[b].data[rows], axis=1)
+        rows_sorted[at:at + len(rows), width - d.shape[1]:] = d
+        at += len(rows)
+    later = _later_copies(key, rows_sorted, len(t.multiplicity))
+    at = 0
+    for b, rows in zip(t.entry_block, t.entry_rows):
+        hits.add(int(b), later[at:at + len(rows)], rows)
+        at += len(rows)
     out: list[Finding] = []
     _emit(out, ctx, hits, "elements.duplicate", "error",
           "elements repeat the node set of another element: their stiffness counts twice")
     return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _later_copies(key, rows, n_keys):  # pragma: no cover - compiled
+    """True for each row equal to an earlier row with the same key (chained per key)."""
+    head = np.full(n_keys, -1, dtype=np.int64)
+    nxt = np.full(key.size, -1, dtype=np.int64)
+    later = np.zeros(key.size, dtype=np.bool_)
+    for c in range(key.size):
+        g = key[c]
+        o = head[g]
+        while o != -1 and not later[c]:
+            same = True
+            for a in range(rows.shape[1]):
+                if rows[o, a] != rows[c, a]:
+                    same = False
+                    break
+            later[c] = same
+            o = nxt[o]
+        nxt[c] = head[g]
+        head[g] = c
+    return later
 
 
 def _mixed_dimension(ctx: CheckContext) -> list[Finding]:

@@ -23,7 +23,8 @@ def check_free_facets(ctx: CheckContext) -> list[Finding]:
     if len(t.group) == 0:
         return []
     free = np.flatnonzero(t.is_free)
-    dims = np.asarray(ctx.dims)[t.block[free]]
+    free_block, _ = t.owner_of(free)
+    dims = np.asarray(ctx.dims)[free_block]
     out = []
     for dim, word in ((3, "faces"), (2, "edges")):
         sel = free[dims == dim]
@@ -35,9 +36,9 @@ def check_free_facets(ctx: CheckContext) -> list[Finding]:
     solid_or_plane = free[dims >= 2]
     pairs = _coincident_facets(ctx, solid_or_plane)
     if pairs.size:
-        nodes = np.unique(t.nodes[pairs.ravel()])
+        nodes = np.unique(t.nodes_of(pairs.ravel()))
         nodes = nodes[nodes >= 0]
-        blocks, rows = t.block[pairs.ravel()], t.cell[pairs.ravel()]
+        blocks, rows = t.owner_of(pairs.ravel())
         _, rule = ctx.tolerance
         out.append(Finding(
             "facets.coincident_free", "error", len(pairs),
@@ -54,7 +55,7 @@ def _coincident_facets(ctx: CheckContext, rows: NDArray[np.int64]) -> NDArray[np
         return np.zeros((0, 2), dtype=np.int64)
     t = ctx.table
     tol, _ = ctx.tolerance
-    nodes = t.nodes[rows]
+    nodes = t.nodes_of(rows)
     valid = nodes >= 0
     pts = ctx.model.points[np.where(valid, nodes, 0)]
     k = valid.sum(axis=1)

@@ -15,6 +15,10 @@ from scipy.spatial import cKDTree
 from .context import CheckContext
 from .findings import Finding
 
+#: Nearest free-facet corners examined around each free facet (its own
+#: corners, the nodes hanging on it and a few neighbours fit comfortably).
+NEAREST = 16
+
 
 def check_hanging_nodes(ctx: CheckContext) -> list[Finding]:
     """Report corner nodes of free facets that lie inside another free facet."""
@@ -22,12 +26,13 @@ def check_hanging_nodes(ctx: CheckContext) -> list[Finding]:
     if len(t.group) == 0:
         return []
     free = np.flatnonzero(t.is_free)
-    dims = np.asarray(ctx.dims)[t.block[free]]
+    free_block, _ = t.owner_of(free)
+    dims = np.asarray(ctx.dims)[free_block]
     free = free[dims >= 2]
     if free.size < 2:
         return []
     tol, rule = ctx.tolerance
-    nodes = t.nodes[free]
+    nodes = t.nodes_of(free)
     candidates = np.unique(nodes[nodes >= 0])
     pts = ctx.model.points
     if pts.shape[1] == 2:
@@ -38,12 +43,12 @@ def check_hanging_nodes(ctx: CheckContext) -> list[Finding]:
     centre = (facet_pts * valid[..., None]).sum(axis=1) / k[:, None]
     radius = np.where(valid, np.linalg.norm(facet_pts - centre[:, None], axis=2), 0).max(axis=1)
     tree = cKDTree(pts[candidates])
-    near = tree.query_ball_point(centre, radius + tol)
-    lengths = np.fromiter((len(x) for x in near), dtype=np.int64, count=len(near))
-    if lengths.sum() == 0:
-        return []
-    facet = np.repeat(np.arange(len(free)), lengths)
-    node = candidates[np.concatenate([np.asarray(x, dtype=np.int64) for x in near if x])]
+    k_near = min(NEAREST, len(candidates))
+    dist, near = tree.query(centre, k=k_near, distance_upper_bound=float(radius.max() + tol))
+    dist, near = dist.reshape(len(centre), -1), near.reshape(len(centre), -1)
+    hit = dist <= (radius + tol)[:, None]
+    facet = np.broadcast_to(np.arange(len(free))[:, None], hit.shape)[hit]
+    node = candidates[near[hit]]
     inside = _inside_facet(pts[node], facet_pts[facet], k[facet], tol)
     inside &= ~(nodes[facet] == node[:, None]).any(axis=1)
     hanging = np.unique(node[inside])

@@ -236,11 +236,20 @@ def _collinear_groups(points: NDArray[np.float64], nodes: NDArray[np.int64],
 
 def _articulations(ctx: CheckContext) -> list[Finding]:
     """Articulation nodes of the graph of the 2D and 3D coupling cells."""
-    blocks = [b.data[use] for b, use, d in zip(ctx.model.cells, ctx.coupling, ctx.dims)
-              if d >= 2 and use.any()]
-    if not blocks:
+    # Within one face-connected block of 2D/3D cells no node is an articulation
+    # node (neighbours share a facet of two or more nodes), so only meshes with
+    # several such blocks need the search.
+    dims = _block_dims(ctx)
+    if np.count_nonzero(dims >= 2) < 2:
         return []
-    cut = articulation_nodes(graph_from_cells(blocks, ctx.model.n_nodes))
+    solid = [d >= 2 for d in ctx.dims]
+    blocks = [b.data[use] for b, use, keep in zip(ctx.model.cells, ctx.coupling, solid)
+              if keep and use.any()]
+    if all(keep or not use.any() for use, keep in zip(ctx.coupling, solid)):
+        graph = ctx.graph  # no line cells: the node graph is the one wanted
+    else:
+        graph = graph_from_cells(blocks, ctx.model.n_nodes)
+    cut = articulation_nodes(graph)
     if cut.size == 0:
         return []
     return [Finding(

@@ -15,6 +15,7 @@ trilinear hexahedron, a wedge or a pyramid (common practice).
 
 from __future__ import annotations
 
+import numba
 import numpy as np
 from numpy.typing import NDArray
 
@@ -82,3 +83,88 @@ def surface_area(p: NDArray[np.float64]) -> NDArray[np.float64]:
 def cell_size(p: NDArray[np.float64]) -> NDArray[np.float64]:
     """Diagonal of the bounding box of each cell's corners: its length scale."""
     return np.linalg.norm(np.ptp(p, axis=1), axis=1)
+
+
+def solid_measures(shape: str, points: NDArray[np.float64], data: NDArray[np.int64],
+                   ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """Signed volume, smallest corner Jacobian and size of every solid of a block.
+
+    Parameters
+    ----------
+    shape
+        Linear solid type of the corners (``"tetra"``, ``"hexahedron"`` ...).
+    points
+        ``(n, 3)`` node coordinates.
+    data
+        ``(m, k)`` connectivity; the corners come first.
+
+    Returns
+    -------
+    volume, min_corner, size
+        As :func:`solid_volume`, the minimum over the corners of
+        :func:`corner_jacobians`, and :func:`cell_size`, computed in one
+        compiled pass without gathering the corner coordinates.
+    """
+    faces = local_facets(shape)
+    table = np.full((len(faces), 4), -1, dtype=np.int64)
+    for j, f in enumerate(faces):
+        table[j, :len(f)] = f
+    frames = np.array(CORNER_FRAMES[shape], dtype=np.int64)
+    if shape == "tetra":  # every corner of a tetrahedron gives 6 V
+        frames = frames[:1]
+    n_corners = {"tetra": 4, "pyramid": 5, "wedge": 6, "hexahedron": 8}[shape]
+    pts = np.ascontiguousarray(points, dtype=np.float64)
+    if pts.shape[1] == 2:
+        pts = np.column_stack([pts, np.zeros(len(pts))])
+    return _solid_kernel(pts, np.ascontiguousarray(data, dtype=np.int64), table, frames,
+                         n_corners)
+
+
+@numba.njit(cache=True, nogil=True)
+def _det_at(p, o, a, b, c):  # pragma: no cover - compiled
+    ax, ay, az = p[a, 0] - p[o, 0], p[a, 1] - p[o, 1], p[a, 2] - p[o, 2]
+    bx, by, bz = p[b, 0] - p[o, 0], p[b, 1] - p[o, 1], p[b, 2] - p[o, 2]
+    cx, cy, cz = p[c, 0] - p[o, 0], p[c, 1] - p[o, 1], p[c, 2] - p[o, 2]
+    return ax * (by * cz - bz * cy) - ay * (bx * cz - bz * cx) + az * (bx * cy - by * cx)
+
+
+@numba.njit(cache=True, nogil=True)
+def _solid_kernel(points, data, faces, frames, n_corners):  # pragma: no cover - compiled
+    m = data.shape[0]
+    volume = np.empty(m)
+    min_corner = np.empty(m)
+    size = np.empty(m)
+    p = np.empty((n_corners, 3))
+    for e in range(m):
+        lo0 = lo1 = lo2 = np.inf
+        hi0 = hi1 = hi2 = -np.inf
+        for a in range(n_corners):  # corners relative to the first: less round-off
+            v = data[e, a]
+            for c in range(3):
+                p[a, c] = points[v, c] - points[data[e, 0], c]
+            lo0, hi0 = min(lo0, p[a, 0]), max(hi0, p[a, 0])
+            lo1, hi1 = min(lo1, p[a, 1]), max(hi1, p[a, 1])
+            lo2, hi2 = min(lo2, p[a, 2]), max(hi2, p[a, 2])
+        size[e] = np.sqrt((hi0 - lo0) ** 2 + (hi1 - lo1) ** 2 + (hi2 - lo2) ** 2)
+        vol = 0.0
+        for f in range(faces.shape[0]):
+            a, b, c, d = faces[f, 0], faces[f, 1], faces[f, 2], faces[f, 3]
+            if d < 0:
+                vol += _triple(p, a, b, c)
+            else:
+                vol += 0.5 * (_triple(p, a, b, c) + _triple(p, a, c, d)
+                              + _triple(p, a, b, d) + _triple(p, b, c, d))
+        volume[e] = vol / 6.0
+        low = np.inf
+        for k in range(frames.shape[0]):
+            low = min(low, _det_at(p, frames[k, 0], frames[k, 1], frames[k, 2], frames[k, 3]))
+        min_corner[e] = low
+    return volume, min_corner, size
+
+
+@numba.njit(cache=True, nogil=True)
+def _triple(p, a, b, c):  # pragma: no cover - compiled
+    """a . (b x c) of three corner position vectors."""
+    return (p[a, 0] * (p[b, 1] * p[c, 2] - p[b, 2] * p[c, 1])
+            - p[a, 1] * (p[b, 0] * p[c, 2] - p[b, 2] * p[c, 0])
+            + p[a, 2] * (p[b, 0] * p[c, 1] - p[b, 1] * p[c, 0]))
