@@ -79,7 +79,7 @@ def matrix_table(folder: Path) -> None:
     print(f"{'geo. mean':<27} " + " " * (11 * len(names))
           + "   " + " ".join(f"{geometric_mean(ratios[m]):>12.3f}" for m in names))
     worst = max(ratios["nd"]) if "nd" in ratios else float("nan")
-    print(f"nd/AMD worst {worst:.3f}; nd better than identity on "
+    print(f"nd/AMD worst {worst:.3f}; nd no worse than the file numbering on "
           f"{sum(a <= b for a, b in zip(ratios['nd'], ratios['identity']))}/{len(rows)}")
 
 
