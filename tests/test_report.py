@@ -413,6 +413,8 @@ def test_full_report_counts_modes_and_equations(full_report):
     eq = doc["equations"]
     assert eq["dofs"] == 3 * 1305 and eq["fixed_dofs"] == 3 and eq["equations"] == 3 * 1305 - 3
     assert eq["reduced_system"]["n_rows"] == eq["equations"]
+    assert eq["order"] == f"renumbered ({doc['comparison']['chosen']})"
+    assert "supports.free_modes" in doc["verdict"]["reason"]     # the gate of check
     sections = parse(page).sections
     assert sections == ["findings", "mesh", "sizing", "orderings", "supports", "not-analysed"]
 

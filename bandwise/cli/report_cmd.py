@@ -13,23 +13,30 @@ from typing import Annotated
 import typer
 
 from ..checks import run_checks
+from ..checks.findings import Finding
 from ..checks.verdict import check_fail_on
-from ..compare import OBJECTIVES, compare_orderings
+from ..compare import OBJECTIVES, Comparison, compare_orderings
 from ..dofs import DofLayout, dof_layout
 from ..equations import equation_numbering
 from ..errors import InputError
-from ..graph import graph_from_matrix, node_graph
+from ..graph import NodeGraph, graph_from_matrix, node_graph
 from ..matrix_io import is_matrix_file, read_matrix_data, summarise_matrix
 from ..meshio_io import read_model
 from ..model import Model
 from ..progress import Progress, StderrProgress, step
 from ..report import ReportFiles, ReportInputs, check_report_folder, write_report
 from ..report.document import PROBLEMS, verdict
-from ..rigid import zero_energy_modes
-from ..summary import summarise
-from ..supports import SupportSet, apply_supports, parse_support, read_support_file
+from ..summary import MeshSummary, summarise
 from . import CAUTION, EXIT_FINDINGS, DofsOpt, FormatOpt, PhysicsOpt, app, guarded
 from .check_cmd import FailOnOpt
+from .support_options import (
+    SupportFileOpt,
+    SupportOpt,
+    SupportReport,
+    analyse_supports,
+    merged_findings,
+    support_request,
+)
 
 #: The ``--report DIR`` option other commands add to their signature.
 ReportOpt = Annotated[Path | None, typer.Option(
@@ -51,13 +58,37 @@ def write_report_option(out_dir: Path | None, inputs: ReportInputs,
     typer.echo(f"bandwise: report written: {files.html}", err=True)
 
 
-def _supports(model: Model, layout: DofLayout, support: list[str] | None,
-              supports_file: Path | None) -> SupportSet | None:
-    """The supports given on the command line and in a file, applied (None if none)."""
-    given = [parse_support(text) for text in support or []]
-    if supports_file is not None:
-        given += read_support_file(supports_file)
-    return apply_supports(model, layout, given) if given else None
+def report_folder(out_dir: Path, source: Path, n_files: int) -> Path:
+    """The report folder of one input: ``DIR`` itself, or ``DIR/<file stem>`` for several.
+
+    With several inputs ``DIR`` is created (its parent must exist) and each
+    input gets a folder of its own inside it.
+    """
+    check_report_folder(out_dir)
+    if n_files == 1:
+        return out_dir
+    out_dir.mkdir(exist_ok=True)
+    return out_dir / source.stem
+
+
+def mesh_report_inputs(model: Model, layout: DofLayout, graph: NodeGraph,
+                       summary: MeshSummary, findings: list[Finding] | None = None,
+                       supports: SupportReport | None = None,
+                       comparison: Comparison | None = None,
+                       fail_on: str = "error") -> ReportInputs:
+    """Gather what a command computed into :class:`~bandwise.report.ReportInputs`.
+
+    With a comparison, the equations are numbered in the kept order, so the
+    reduced-system figures are those the solver will see.
+    """
+    equations = modes = held = None
+    if supports is not None:
+        held, modes, equations = supports.supports, supports.analysis, supports.equations
+        if comparison is not None:
+            equations = equation_numbering(layout, held.fixed, comparison.best.perm, graph)
+    return ReportInputs(model=model, graph=graph, layout=layout, summary=summary,
+                        findings=findings, comparison=comparison, supports=held,
+                        modes=modes, equations=equations, fail_on=fail_on)
 
 
 @app.command()
@@ -68,12 +99,8 @@ def report(
         "--out", metavar="DIR",
         help="Report folder: report.html, report.json and the PNG figures "
              "(created if missing; its parent must exist).")],
-    support: Annotated[list[str] | None, typer.Option(
-        "--support", metavar="SELECTOR:DOFS",
-        help="A support, e.g. 'WALL:fixed', 'plane x=0:ux,uy' (repeatable); with supports "
-             "the report counts zero-energy modes and equations.")] = None,
-    supports_file: Annotated[Path | None, typer.Option(
-        "--supports", metavar="FILE", help="Supports from a TOML file.")] = None,
+    support: SupportOpt = None,
+    supports_file: SupportFileOpt = None,
     method: Annotated[str, typer.Option(
         "--method", help="Orderings to compare: auto, none, or names separated by commas.")
     ] = "auto",
@@ -100,25 +127,18 @@ def report(
         inputs = _matrix_inputs(mesh, method, objective, fail_on, progress)
         _finish(write_report(out, inputs, progress), inputs)
         return
+    request = support_request(support, supports_file, False, None, 1)
     model = read_model(mesh, file_format)
     layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
-    supports = _supports(model, layout, support, supports_file)
     with step(progress, "building node graph"):
         graph = node_graph(model)
     summary = summarise(model, layout, graph, progress=progress)
-    findings = run_checks(model, graph, progress=progress)
+    held = analyse_supports(model, layout, graph, request, progress)
+    findings = merged_findings(run_checks(model, graph, progress=progress), held)
     comparison = (None if method == "none" else
                   compare_orderings(graph, method, objective, layout, progress=progress))
-    perm = None if comparison is None else comparison.best.perm
-    modes = equations = None
-    if supports is not None:
-        with step(progress, "finding zero-energy modes"):
-            modes = zero_energy_modes(model, layout, supports, graph)
-        with step(progress, "numbering equations"):
-            equations = equation_numbering(layout, supports.fixed, perm, graph)
-    inputs = ReportInputs(model=model, graph=graph, layout=layout, summary=summary,
-                          findings=findings, comparison=comparison, supports=supports,
-                          modes=modes, equations=equations, fail_on=fail_on)
+    inputs = mesh_report_inputs(model, layout, graph, summary, findings, held, comparison,
+                                fail_on)
     _finish(write_report(out, inputs, progress), inputs)
 
 

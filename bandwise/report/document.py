@@ -168,6 +168,23 @@ def modes_data(modes: Any) -> dict[str, Any]:
     return data
 
 
+def equations_data(inputs: ReportInputs) -> dict[str, Any]:
+    """The equation count's own JSON, with the node order its equations follow."""
+    eq = inputs.equations
+    data = plain(eq.to_dict())
+    perm = getattr(eq, "perm", None)
+    chosen = inputs.chosen_perm
+    if perm is None:
+        return data
+    if chosen is not None and np.array_equal(perm, chosen):
+        data["order"] = f"renumbered ({inputs.chosen_method})"
+    elif np.array_equal(perm, np.arange(len(perm))):
+        data["order"] = "current numbering"
+    else:
+        data["order"] = "a given order"
+    return data
+
+
 def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None = None
                     ) -> dict[str, Any]:
     """The whole report as JSON-ready data.
@@ -200,7 +217,7 @@ def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None =
         "comparison": None if inputs.comparison is None else comparison_data(inputs.comparison),
         "supports": supports,
         "modes": None if inputs.modes is None else modes_data(inputs.modes),
-        "equations": None if inputs.equations is None else _as_dict(inputs.equations),
+        "equations": None if inputs.equations is None else equations_data(inputs),
         "not_analysed": not_analysed(inputs),
         "figures": list(figures or []),
     }

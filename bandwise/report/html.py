@@ -381,8 +381,9 @@ def equations_html(eq: Mapping[str, Any]) -> str:
                   ["equations to solve", eq.get("equations")]])]
     reduced = eq.get("reduced_system")
     if isinstance(reduced, dict):
+        order = f" in the {esc(eq['order'])} order" if eq.get("order") else ""
         out.append("<p>Reduced system (held rows and columns removed), measured on its own "
-                   "pattern in the renumbered order:</p>")
+                   f"pattern{order}:</p>")
         rows = [("<table><tr><th>figure</th><th>reduced system</th>"
                 "<th>unit / convention</th></tr>")]
         for key, (label, unit) in FIGURE_LABELS.items():
@@ -391,7 +392,7 @@ def equations_html(eq: Mapping[str, Any]) -> str:
                             f'<td class="unit">{esc(unit)}</td></tr>')
         out.append("".join(rows) + "</table>")
         extra = {k: v for k, v in eq.items()
-                 if k not in ("dofs", "fixed_dofs", "equations", "reduced_system")}
+                 if k not in ("dofs", "fixed_dofs", "equations", "reduced_system", "order")}
         if extra:
             out.append(facts_table(extra))
     return "\n".join(out)
