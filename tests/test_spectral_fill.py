@@ -17,7 +17,7 @@ import pytest
 import scipy.io
 import scipy.sparse as sp
 from conftest import shared_path
-from hypothesis import given
+from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import connected_components
 
@@ -227,6 +227,20 @@ def test_symbolic_counts_match_a_numeric_cholesky(name, seed):
     first = np.where(below.any(axis=0), below.argmax(axis=0), -1)
     assert np.array_equal(elimination_tree(graph, perm), first)
     assert factor_flops(graph, perm) == int((low.sum(axis=0) ** 2).sum())
+
+
+@settings(max_examples=25)
+@given(kind=st.sampled_from(["quad", "triangle", "tetra"]), size=st.integers(2, 6),
+       keep=st.lists(st.booleans(), min_size=1, max_size=9), seed=st.integers(0, 2**16))
+def test_fill_of_random_holed_meshes_matches_a_numeric_cholesky(kind, size, keep, seed):
+    # As above, on random generated meshes with cells removed (orphans, several parts)
+    # and random orderings: nnz(L) against numpy's dense Cholesky (George and Liu 1981,
+    # ch. 5: without cancellation the numeric pattern is the symbolic one).
+    graph = holed_mesh(kind, size, keep)
+    perm = np.random.default_rng(seed).permutation(graph.n).astype(np.int64)
+    low = numeric_factor(random_spd(graph, seed), perm) != 0
+    assert cholesky_nnz(graph, perm) == np.count_nonzero(low)
+    assert np.array_equal(column_counts(graph, perm), low.sum(axis=0))
 
 
 @pytest.mark.parametrize("d", [2, 3, 6])
