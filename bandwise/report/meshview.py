@@ -128,6 +128,16 @@ def _met_once(key: NDArray[np.int64]) -> NDArray[np.bool_]:
     return once[at] == key
 
 
+def _face_tables(model: Model) -> list[tuple[NDArray[np.integer], tuple[int, ...]]]:
+    """(cell connectivity, local face) of every face of every 3D cell block."""
+    out = []
+    for block in model.cells:
+        base = block.type.rstrip("0123456789") if block.type not in FACES else block.type
+        if base in FACES and len(block):
+            out.extend((block.data, face) for face in FACES[base])
+    return out
+
+
 def outer_faces(model: Model) -> NDArray[np.int64]:
     """Faces of the 3D cells that belong to one cell only, as ``(m, 4)`` corners.
 
@@ -136,30 +146,38 @@ def outer_faces(model: Model) -> NDArray[np.int64]:
 
     Notes
     -----
-    One sort of the F face keys and a binary search: O(F log F).
+    One sort of the F face keys and a binary search: O(F log F) time.  Only
+    the keys of all faces are held at once (8 bytes a face); the corners are
+    gathered for the outer faces alone.
     """
-    faces, keys = [], []
-    n = max(model.n_nodes, 1)
-    packed = float(n) ** 3 < 2.0 ** 62
-    for block in model.cells:
-        base = block.type.rstrip("0123456789") if block.type not in FACES else block.type
-        table = FACES.get(base)
-        if table is None or len(block) == 0:
-            continue
-        for face in table:
-            corners = block.data[:, list(face)].astype(np.int64)
-            small = _three_smallest(corners)
-            keys.append((small[:, 0] * n + small[:, 1]) * n + small[:, 2] if packed else small)
-            faces.append(_pad4(corners))
-    if not faces:
+    tables = _face_tables(model)
+    if not tables:
         return np.zeros((0, 4), dtype=np.int64)
-    allf = np.concatenate(faces)
-    if packed:
-        return allf[_met_once(np.concatenate(keys))]
-    # pragma: no cover - beyond two million nodes the key does not fit 63 bits
-    _, inverse, counts = np.unique(np.concatenate(keys), axis=0, return_inverse=True,
-                                   return_counts=True)
-    return allf[counts[inverse.ravel()] == 1]
+    n = max(model.n_nodes, 1)
+    if float(n) ** 3 >= 2.0 ** 62:  # beyond 1.6 million nodes
+        return _outer_faces_by_rows(tables)
+    keys = []
+    for data, face in tables:
+        small = _three_smallest(data[:, list(face)].astype(np.int64))
+        keys.append((small[:, 0] * n + small[:, 1]) * n + small[:, 2])
+    sizes = [k.size for k in keys]
+    outer = _met_once(np.concatenate(keys))
+    del keys
+    faces, start = [], 0
+    for (data, face), size in zip(tables, sizes):
+        rows = np.flatnonzero(outer[start:start + size])
+        faces.append(_pad4(data[rows][:, list(face)].astype(np.int64)))
+        start += size
+    return np.concatenate(faces)
+
+
+def _outer_faces_by_rows(tables: list[tuple[NDArray[np.integer], tuple[int, ...]]]
+                         ) -> NDArray[np.int64]:
+    """:func:`outer_faces` for meshes whose packed face key would not fit 63 bits."""
+    corners = [data[:, list(face)].astype(np.int64) for data, face in tables]
+    small = np.concatenate([_three_smallest(c) for c in corners])
+    _, inverse, counts = np.unique(small, axis=0, return_inverse=True, return_counts=True)
+    return np.concatenate([_pad4(c) for c in corners])[counts[inverse.ravel()] == 1]
 
 
 def surface_cells(model: Model) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
