@@ -40,165 +40,133 @@ from ..graph import NodeGraph
 from . import register
 from ._levels import NO_CAP, _nodes_by_degree, _pseudo_diameter, _sweep
 
-INACTIVE, PREACTIVE, ACTIVE, POSTACTIVE = 0, 1, 2, 3
-
-
-# The heap keeps a copy of each entry's priority beside its node (``hkey``), so
-# that sifting touches only the heap's own small arrays, not the per-node ones.
-# Its operations are inlined: a compiled call per operation (with its array
-# reference counting) would cost several times the operation itself.  Raises
-# are batched per step (:func:`_bump`, :func:`_settle`).
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _ahead(hkey, heap, a, b):  # pragma: no cover - compiled
-    """Whether heap entry ``a`` comes out before entry ``b`` (ties: lower node first)."""
-    return hkey[a] > hkey[b] or (hkey[a] == hkey[b] and heap[a] < heap[b])
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _sift_up(heap, hkey, where, i):  # pragma: no cover - compiled
-    v = heap[i]
-    kv = hkey[i]
-    while i > 0:
-        parent = (i - 1) >> 1
-        kp = hkey[parent]
-        if kv < kp or (kv == kp and v > heap[parent]):
-            break
-        u = heap[parent]
-        heap[i] = u
-        hkey[i] = kp
-        where[u] = i
-        i = parent
-    heap[i] = v
-    hkey[i] = kv
-    where[v] = i
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _sift_down(heap, hkey, where, i, size):  # pragma: no cover - compiled
-    v = heap[i]
-    kv = hkey[i]
-    while True:
-        child = 2 * i + 1
-        if child >= size:
-            break
-        if child + 1 < size and _ahead(hkey, heap, child + 1, child):
-            child += 1
-        kc = hkey[child]
-        if kc < kv or (kc == kv and heap[child] > v):
-            break
-        u = heap[child]
-        heap[i] = u
-        hkey[i] = kc
-        where[u] = i
-        i = child
-    heap[i] = v
-    hkey[i] = kv
-    where[v] = i
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _push(heap, hkey, where, prio, size, v):  # pragma: no cover - compiled
-    heap[size] = v
-    hkey[size] = prio[v]
-    _sift_up(heap, hkey, where, size)
-    return size + 1
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _pop(heap, hkey, where, size):  # pragma: no cover - compiled
-    top = heap[0]
-    where[top] = -1
-    size -= 1
-    if size > 0:
-        heap[0] = heap[size]
-        hkey[0] = hkey[size]
-        _sift_down(heap, hkey, where, 0, size)
-    return top, size
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _bump(prio, touched, count, v, amount):  # pragma: no cover - compiled
-    """Raise the priority of ``v`` now and note it for the heap (repeats are harmless)."""
-    prio[v] += amount
-    touched[count] = v
-    return count + 1
-
-
-@numba.njit(cache=True, nogil=True, inline="always")
-def _settle(heap, hkey, where, prio, status, touched, count, size):  # pragma: no cover
-    """Bring the heap up to date with the nodes raised in one step; returns its size.
-
-    The order out of the heap (priority, then lowest node) is a total order,
-    so sifting once per batch gives the same numbering as sifting after
-    every raise; a node noted twice is sifted twice, the second time at no
-    cost.
-    """
-    for c in range(count):
-        v = touched[c]
-        i = where[v]
-        if i >= 0:
-            hkey[i] = prio[v]
-            _sift_up(heap, hkey, where, i)
-        elif status[v] != POSTACTIVE:
-            size = _push(heap, hkey, where, prio, size, v)
-    return size
+# Node state in one int64 per node (``slot``), so that the inner loops touch a
+# single per-node word: -1 inactive, -2 postactive, and for a node in the heap
+# ``2 * position + 1`` if active, ``2 * position`` if preactive.  A node's
+# priority lives only in the heap (``hkey``, beside its node in ``heap``) from
+# the moment it becomes preactive; before that it is its initial priority
+# ``base``.  The heap is a binary max-heap on (priority, -node).  Its sifts are
+# written out inside the loop: as compiled calls (even inlined ones) they cost
+# about twice as much, measured on a tetrahedral mesh.
+INACTIVE = -1
+POSTACTIVE = -2
 
 
 @numba.njit(cache=True, nogil=True)
-def _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, touched, out,
+def _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, out,
                         start):  # pragma: no cover - compiled
-    """Sloan's numbering loop from ``s`` (priorities set); writes ``out[start:]``.
+    """Sloan's numbering loop from ``s``; writes ``out[start:]``.
 
     Each step: take the node of highest priority; if it was preactive, its
-    neighbours lose one from their current degree (+W2) and inactive ones
-    become preactive; number it; each preactive neighbour becomes active
-    (+W2) and so do its own neighbours' priorities (+W2), inactive ones
-    becoming preactive (Sloan 1986, steps 6-9).
+    neighbours' current degrees drop by one (+W2) and inactive ones become
+    preactive; number it; each preactive neighbour becomes active (+W2) and
+    its own neighbours' priorities rise too (+W2), inactive ones becoming
+    preactive (Sloan 1986, steps 6-9).  "Rise" below means: a node in the
+    heap gains W2 and sifts up; an inactive node enters the heap with its
+    initial priority + W2.
     """
-    size = _push(heap, hkey, where, prio, 0, s)
-    status[s] = PREACTIVE
-    room = touched.size
+    heap[0] = s
+    hkey[0] = base[s]
+    slot[s] = 0
+    size = 1
     k = start
     while size > 0:
-        i, size = _pop(heap, hkey, where, size)
-        count = 0
-        if status[i] == PREACTIVE:
+        # -- take the top of the heap; the last entry sifts down from the root
+        i = heap[0]
+        was_active = (slot[i] & 1) == 1
+        slot[i] = POSTACTIVE
+        size -= 1
+        if size > 0:
+            v = heap[size]
+            kv = hkey[size]
+            p = 0
+            while True:
+                c = 2 * p + 1
+                if c >= size:
+                    break
+                if c + 1 < size and (hkey[c + 1] > hkey[c]
+                                     or (hkey[c + 1] == hkey[c] and heap[c + 1] < heap[c])):
+                    c += 1
+                if hkey[c] < kv or (hkey[c] == kv and heap[c] > v):
+                    break
+                u = heap[c]
+                heap[p] = u
+                hkey[p] = hkey[c]
+                slot[u] = (p << 1) | (slot[u] & 1)
+                p = c
+            heap[p] = v
+            hkey[p] = kv
+            slot[v] = (p << 1) | (slot[v] & 1)
+        # -- if it was preactive: its neighbours rise (step 7)
+        if not was_active:
             for t in range(indptr[i], indptr[i + 1]):
                 j = indices[t]
-                if status[j] == POSTACTIVE:
+                state = slot[j]
+                if state == POSTACTIVE:
                     continue
-                count = _bump(prio, touched, count, j, w2)
-                if status[j] == INACTIVE:
-                    status[j] = PREACTIVE
+                if state >= 0:
+                    q = state >> 1
+                    key = hkey[q] + w2
+                else:
+                    q = size
+                    size += 1
+                    key = base[j] + w2
+                    slot[j] = q << 1
+                while q > 0:
+                    parent = (q - 1) >> 1
+                    kp = hkey[parent]
+                    if key < kp or (key == kp and j > heap[parent]):
+                        break
+                    u = heap[parent]
+                    heap[q] = u
+                    hkey[q] = kp
+                    slot[u] = (q << 1) | (slot[u] & 1)
+                    q = parent
+                heap[q] = j
+                hkey[q] = key
+                slot[j] = (q << 1) | (slot[j] & 1)
         out[k] = i
-        status[i] = POSTACTIVE
+        k += 1
+        # -- each preactive neighbour j becomes active: j and its neighbours rise (step 9);
+        #    position indptr[j] - 1 stands for j itself
         for t in range(indptr[i], indptr[i + 1]):
             j = indices[t]
-            if status[j] != PREACTIVE:
+            state = slot[j]
+            if state < 0 or state & 1:
                 continue
-            if count + indptr[j + 1] - indptr[j] + 1 > room:
-                size = _settle(heap, hkey, where, prio, status, touched, count, size)
-                count = 0
-            status[j] = ACTIVE
-            count = _bump(prio, touched, count, j, w2)
-            for r in range(indptr[j], indptr[j + 1]):
-                m = indices[r]
-                if status[m] == POSTACTIVE:
+            slot[j] = state | 1
+            for r in range(indptr[j] - 1, indptr[j + 1]):
+                m = j if r < indptr[j] else indices[r]
+                state = slot[m]
+                if state == POSTACTIVE:
                     continue
-                count = _bump(prio, touched, count, m, w2)
-                if status[m] == INACTIVE:
-                    status[m] = PREACTIVE
-        size = _settle(heap, hkey, where, prio, status, touched, count, size)
-        k += 1
+                if state >= 0:
+                    q = state >> 1
+                    key = hkey[q] + w2
+                else:
+                    q = size
+                    size += 1
+                    key = base[m] + w2
+                    slot[m] = q << 1
+                while q > 0:
+                    parent = (q - 1) >> 1
+                    kp = hkey[parent]
+                    if key < kp or (key == kp and m > heap[parent]):
+                        break
+                    u = heap[parent]
+                    heap[q] = u
+                    hkey[q] = kp
+                    slot[u] = (q << 1) | (slot[u] & 1)
+                    q = parent
+                heap[q] = m
+                hkey[q] = key
+                slot[m] = (q << 1) | (slot[m] & 1)
     return k - start
 
 
 @numba.njit(cache=True, nogil=True)
 def _sloan_part(indptr, indices, deg, low, w1, w2, key, use_key, seen, stamp, order, start,
-                trees, tree_ptr, cand, prio, status, heap, hkey, where,
-                touched):  # pragma: no cover - compiled
+                trees, tree_ptr, cand, base, slot, heap, hkey):  # pragma: no cover - compiled
     """Sloan numbering of the part of ``low`` into ``order[start:]``; returns ``(size, stamp)``."""
     if use_key:
         stamp += 1
@@ -207,7 +175,7 @@ def _sloan_part(indptr, indices, deg, low, w1, w2, key, use_key, seen, stamp, or
         s = low
         for a in range(start, start + size):
             w = trees[0, a]
-            prio[w] = w1 * key[w] - w2 * (deg[w] + 1)
+            base[w] = w1 * key[w] - w2 * (deg[w] + 1)
             if key[w] > key[s] or (key[w] == key[s] and w < s):
                 s = w
     else:
@@ -218,9 +186,8 @@ def _sloan_part(indptr, indices, deg, low, w1, w2, key, use_key, seen, stamp, or
         for lvl in range(depth):
             for a in range(level_ptr[lvl], level_ptr[lvl + 1]):
                 w = nodes[a]
-                prio[w] = w1 * lvl - w2 * (deg[w] + 1)
-    _number_by_priority(indptr, indices, s, w2, prio, status, heap, hkey, where, touched,
-                        order, start)
+                base[w] = w1 * lvl - w2 * (deg[w] + 1)
+    _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, order, start)
     return size, stamp
 
 
@@ -236,20 +203,17 @@ def _sloan_parts(indptr, indices, w1, w2, key, use_key):  # pragma: no cover - c
     trees = np.empty((3, n), dtype=np.int64)
     tree_ptr = np.empty((3, n + 1), dtype=np.int64)
     cand = np.empty(n, dtype=np.int64)
-    prio = np.empty(n, dtype=np.float64)
-    status = np.zeros(n, dtype=np.int8)
+    base = np.empty(n, dtype=np.float64)
+    slot = np.full(n, INACTIVE, dtype=np.int64)
     heap = np.empty(n, dtype=np.int64)
     hkey = np.empty(n, dtype=np.float64)
-    where = np.full(n, -1, dtype=np.int64)
-    touched = np.empty(n, dtype=np.int64)
     placed = 0
     stamp = 0
     for v in _nodes_by_degree(deg):
         if seen[v] != 0:
             continue
         size, stamp = _sloan_part(indptr, indices, deg, v, w1, w2, key, use_key, seen, stamp,
-                                  order, placed, trees, tree_ptr, cand, prio, status, heap, hkey,
-                                  where, touched)
+                                  order, placed, trees, tree_ptr, cand, base, slot, heap, hkey)
         placed += size
     return order
 
