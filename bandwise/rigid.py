@@ -39,14 +39,15 @@ from typing import Any
 import numba
 import numpy as np
 import scipy.linalg as la
+import scipy.sparse as sp
 from numpy.typing import NDArray
 from scipy.sparse.csgraph import connected_components
 
 from .dofs import DOF_NAMES, PLANE, PLANE_FRAME, SCALAR, SOLID, SPACE, DofLayout, mask_names
 from .elements import cell_dimension
-from .graph import NodeGraph, node_graph
+from .graph import NodeGraph
 from .model import Model
-from .supports import SupportSet, no_supports
+from .supports import SupportSet, model_extent, no_supports
 
 _BIT = {name: 1 << k for k, name in enumerate(DOF_NAMES)}
 ROTATIONS = _BIT["rx"] | _BIT["ry"] | _BIT["rz"]
@@ -249,9 +250,18 @@ def motion_space(model: Model, layout: DofLayout) -> str | None:
     if used & SCALAR:
         return "scalar" if used == SCALAR else None
     out_of_plane = _BIT["uz"] | _BIT["rx"] | _BIT["ry"]
-    if model.is_planar() and not used & out_of_plane:
+    if _is_planar(model) and not used & out_of_plane:
         return "plane"
     return "space"
+
+
+def _is_planar(model: Model, rtol: float = 1e-9) -> bool:
+    """``Model.is_planar`` computed column by column (the same rule, faster)."""
+    pts = model.points
+    if pts.shape[1] < 3 or pts.shape[0] == 0:
+        return True
+    z = pts[:, 2]
+    return bool(z.max() - z.min() <= rtol * (model_extent(pts) or 1.0))
 
 
 def _n_motions(space: str) -> int:
@@ -361,8 +371,8 @@ def make_bodies(model: Model, layout: DofLayout, space: str,
         from .topology import face_connected_blocks
 
         _, labels = face_connected_blocks(model)
-    planar = space == "plane"
-    rot_needed = _BIT["rz"] if planar else ROTATIONS
+    planar = space == "plane" or _is_planar(model)   # as the DOF layout decides families
+    rot_needed = _BIT["rz"] if space == "plane" else ROTATIONS
     n_blocks = max((int(lab.max()) + 1 for lab in labels if lab.size), default=0)
     dim_of_block = np.zeros(n_blocks, dtype=np.int64)
     block_pinned = np.zeros(n_blocks, dtype=bool)
@@ -488,6 +498,13 @@ def _frames(pts: NDArray[np.float64], bodies: Bodies, layout: DofLayout, space: 
     basis[has_rot, 3:, 3:] = np.eye(3)
     rank[:] = 3 + kept_sorted.sum(axis=1)
     rank[has_rot] = 6
+    # plane elements in a 3D layout stiffen ux uy (rz) only: their motions are tx, ty, qz
+    in_plane = (bodies.own & _BIT["uz"]) == 0
+    if in_plane.any():
+        plane_basis = np.zeros((nm, nm))
+        plane_basis[0, 0] = plane_basis[1, 1] = plane_basis[5, 2] = 1.0
+        basis[in_plane] = plane_basis
+        rank[in_plane] = 3
     return _Frames(centroid, size, basis, rank)
 
 
@@ -521,25 +538,22 @@ def _constraints(space: str, pts: NDArray[np.float64], bodies: Bodies, frames: _
         pn, pb = node[owns], body[owns]
         lead = np.r_[True, pn[1:] != pn[:-1]]        # first owning body of each node
         lead_idx = np.maximum.accumulate(np.where(lead, np.arange(pn.size), 0))
-        vals = _pair_rows(space, dof, pts, frames, pn, pb)
-        # equalities: every further owner equals the first one
-        follower = np.flatnonzero(~lead)
-        if follower.size:
-            first = lead_idx[follower]
-            r = n_rows + np.arange(follower.size)
-            n_rows += follower.size
-            for sel, sign in ((first, 1.0), (follower, -1.0)):
+        follower = np.flatnonzero(~lead)             # every further owner equals the first
+        first = lead_idx[follower]
+        held = np.flatnonzero(lead & ((fixed[pn] & bit) != 0))   # the first owner's is zero
+        # the motions are evaluated only where a constraint needs them
+        needed = np.concatenate([first, follower, held])
+        vals = _pair_rows(space, dof, pts, frames, pn[needed], pb[needed])
+        nf = follower.size
+        blocks = ((first, vals[:nf], 0), (follower, -vals[nf:2 * nf], 0),
+                  (held, vals[2 * nf:], nf))
+        for sel, v, shift in blocks:
+            if sel.size:
+                r = n_rows + shift + np.arange(sel.size)
                 rows_r.append(np.repeat(r, nm))
                 rows_c.append((pb[sel][:, None] * nm + np.arange(nm)).ravel())
-                rows_v.append(sign * vals[sel].ravel())
-        # held DOFs: the first owner's motion there is zero
-        held = np.flatnonzero(lead & ((fixed[pn] & bit) != 0))
-        if held.size:
-            r = n_rows + np.arange(held.size)
-            n_rows += held.size
-            rows_r.append(np.repeat(r, nm))
-            rows_c.append((pb[held][:, None] * nm + np.arange(nm)).ravel())
-            rows_v.append(vals[held].ravel())
+                rows_v.append(v.ravel())
+        n_rows += nf + held.size
     if not rows_r:
         empty = np.zeros(0, dtype=np.int64)
         return empty, empty, np.zeros(0), 0
@@ -556,7 +570,8 @@ def _null_space(a: NDArray[np.float64], n_cols: int) -> NDArray[np.float64]:
         for start in range(0, a.shape[0], chunk):
             r = la.qr(np.vstack([r, a[start:start + chunk]]), mode="r")[0][:n_cols]
         a = r
-    _, s, vt = la.svd(a, full_matrices=True)
+    # a tall matrix needs only its right singular vectors: never form the m x m U
+    _, s, vt = la.svd(a, full_matrices=a.shape[0] < n_cols)
     # every row has an entry of size 1 (a translation or rotation coefficient) and
     # lever arms scaled by the body size: an absolute floor of 1 keeps a nearly
     # zero matrix (all constraints satisfied by construction) rank-deficient
@@ -582,7 +597,8 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
     supports
         Held DOFs (:func:`bandwise.supports.apply_supports`); None: no supports.
     graph
-        The node graph, if already built (for the connected parts).
+        Not needed (the parts follow from the bodies); accepted so that
+        callers holding the node graph may pass it.
     labels
         Face-connected block of every cell, if already computed.
 
@@ -606,15 +622,13 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
         note = ("zero-energy modes not analysed: the DOFs have no standard names or mix a "
                 "scalar field with displacements")
         return ZeroEnergyAnalysis("none", (), 0, (), (note,), labels_word)
-    if graph is None:
-        graph = node_graph(model)
     pts = _coordinates(model)
-    extent = float(np.ptp(pts, axis=0).max()) or 1.0
+    extent = model_extent(pts) or 1.0
     bodies = make_bodies(model, layout, space, labels)
     frames = _frames(pts, bodies, layout, space, extent)
     fixed = supports.fixed
     without = _dofs_without_stiffness(layout, bodies, fixed)
-    part_of_node, n_parts = _parts(graph)
+    part_of_node, n_parts = _parts(bodies, model.n_nodes)
     nm = _n_motions(space)
     r, c, v, _ = _constraints(space, pts, bodies, frames, layout, fixed)
     valid_col = (np.arange(nm)[None, :] < frames.rank[:, None]).ravel()
@@ -678,7 +692,9 @@ def moment_release(bodies: Bodies, layout: DofLayout,
 
 def _dofs_without_stiffness(layout: DofLayout, bodies: Bodies, fixed: NDArray[np.int64]) -> int:
     owned = np.zeros(layout.masks.size, dtype=np.int64)
-    np.bitwise_or.at(owned, bodies.node, bodies.own[bodies.body])
+    if bodies.node.size:                            # pairs are sorted by node
+        starts = np.flatnonzero(np.r_[True, bodies.node[1:] != bodies.node[:-1]])
+        owned[bodies.node[starts]] = np.bitwise_or.reduceat(bodies.own[bodies.body], starts)
     lacking = layout.masks & ~owned & ~fixed
     count = np.zeros(lacking.shape, dtype=np.int64)
     for k in range(len(DOF_NAMES)):
@@ -686,25 +702,31 @@ def _dofs_without_stiffness(layout: DofLayout, bodies: Bodies, fixed: NDArray[np
     return int(count.sum())
 
 
-def _parts(graph: NodeGraph) -> tuple[NDArray[np.int64], int]:
-    """Part of each node (-1 for isolated nodes), parts numbered by lowest node."""
-    n = graph.n
-    if n == 0:
-        return np.zeros(0, dtype=np.int64), 0
-    _, comp = connected_components(graph.to_scipy(), directed=False)
-    comp = comp.astype(np.int64)
-    isolated = graph.degrees() == 0
-    comp[isolated] = -1
-    kept = comp[~isolated]
-    if kept.size == 0:
-        return comp, 0
-    _, first = np.unique(kept, return_index=True)
-    order = np.argsort(first)           # components by their lowest node
-    rank = np.empty(order.size, dtype=np.int64)
-    rank[order] = np.arange(order.size)
-    uniq = np.unique(kept)
-    comp[~isolated] = rank[np.searchsorted(uniq, kept)]
-    return comp, int(order.size)
+def _parts(bodies: Bodies, n_nodes: int) -> tuple[NDArray[np.int64], int]:
+    """Connected part of each node (-1 for nodes of no element), numbered by lowest node.
+
+    Bodies sharing a node are in one part: the same parts as the node graph's
+    connected components (without its isolated nodes), found on the much
+    smaller body graph.
+    """
+    part = np.full(n_nodes, -1, dtype=np.int64)
+    if bodies.node.size == 0:
+        return part, 0
+    node, body = bodies.node, bodies.body
+    lead = np.r_[True, node[1:] != node[:-1]]
+    lead_idx = np.maximum.accumulate(np.where(lead, np.arange(node.size), 0))
+    follower = np.flatnonzero(~lead)
+    links = sp.coo_matrix((np.ones(follower.size, dtype=np.int8),
+                           (body[lead_idx[follower]], body[follower])),
+                          shape=(bodies.n, bodies.n))
+    _, body_comp = connected_components(links, directed=False)
+    comp_of_pair = body_comp[body]
+    # number the parts by their lowest node (pairs are sorted by node)
+    seen, first = np.unique(comp_of_pair, return_index=True)
+    order = np.empty(int(body_comp.max()) + 1, dtype=np.int64)
+    order[seen[np.argsort(first)]] = np.arange(seen.size)
+    part[node] = order[comp_of_pair]
+    return part, int(seen.size)
 
 
 @dataclass(frozen=True)

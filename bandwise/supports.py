@@ -372,6 +372,13 @@ def _coordinates(model: Model) -> NDArray[np.float64]:
     return pts
 
 
+def model_extent(pts: NDArray[np.float64]) -> float:
+    """Largest coordinate range of the nodes (column by column: fast on (n, 3) arrays)."""
+    if pts.shape[0] == 0:
+        return 0.0
+    return max(float(pts[:, k].max() - pts[:, k].min()) for k in range(pts.shape[1]))
+
+
 def coupled_nodes(model: Model) -> NDArray[np.bool_]:
     """True for every node of an element that couples nodes (not an orphan)."""
     used = np.zeros(model.n_nodes, dtype=bool)
@@ -427,10 +434,16 @@ def set_nodes(model: Model, name: str) -> NDArray[np.int64]:
                      + (f"the file has: {shown}" if known else "the file has none"))
 
 
-def select_nodes(model: Model, support: Support) -> NDArray[np.int64]:
-    """The 0-based indices of the nodes a support's selector picks (sorted, unique)."""
+def select_nodes(model: Model, support: Support, extent: float | None = None,
+                 ) -> NDArray[np.int64]:
+    """The 0-based indices of the nodes a support's selector picks (sorted, unique).
+
+    ``extent`` (the model's largest coordinate range) scales the default
+    tolerance; computed when not given.
+    """
     pts = _coordinates(model)
-    extent = float(np.ptp(pts, axis=0).max()) if model.n_nodes else 0.0
+    if extent is None:
+        extent = model_extent(pts)
     tol = support.tol if support.tol is not None else RELATIVE_TOLERANCE * (extent or 1.0)
     if support.kind == "set":
         return set_nodes(model, support.target)
@@ -507,8 +520,9 @@ def apply_supports(model: Model, layout: DofLayout, supports: list[Support]) -> 
     used = coupled_nodes(model)
     labels, word = model.node_labels()
     applied = []
+    extent = model_extent(_coordinates(model))
     for support in supports:
-        nodes = select_nodes(model, support)
+        nodes = select_nodes(model, support, extent)
         if nodes.size == 0:
             raise InputError(f"{support.origin}: the selector {support.describe()!r} picks "
                              "no node")

@@ -210,6 +210,16 @@ def test_orphan_nodes_and_unstiffened_rotations_are_counted_apart() -> None:
     assert check.agrees
 
 
+def test_plane_mesh_with_three_dofs_per_node() -> None:
+    # plane elements stiffen ux, uy only: 3 rigid motions, and uz of every node is a
+    # DOF without stiffness; the assembled stiffness has the same null space
+    model = quad_grid(3, 3)
+    analysis, layout, held = _analyse(model, dofs_per_node=3)
+    assert sum(p.n_rigid for p in analysis.parts) == 3
+    assert analysis.dofs_without_stiffness == 9 and analysis.total == 12
+    assert verify_stiffness(model, layout, held, analysis).agrees
+
+
 def test_frame_welded_to_solid_is_a_moment_release() -> None:
     solid = hex_grid(2, 2, 2)
     pts = np.vstack([solid.points, [[0.5, 0.5, 3.0]]])
