@@ -38,13 +38,13 @@ import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import scipy.sparse as sp
 from numpy.typing import NDArray
 
-from .atomic import write_bytes_atomic
+from .atomic import atomic_folder
 from .errors import InputError, MeshReadError
 from .model import check_permutation
 
@@ -391,10 +391,9 @@ def _is_symmetric(matrix: sp.csr_matrix, kind: str) -> bool:
     return kind == "pattern" or bool(np.array_equal(m.data, t.data))
 
 
-def matrix_market_text(matrix: sp.spmatrix, perm: NDArray[np.integer] | None = None, *,
-                       symmetry: str | None = None, field: str | None = None,
-                       comment: str = "") -> str:
-    """The Matrix Market coordinate text of ``A[perm][:, perm]`` (see :func:`write_matrix_market`)."""
+def _stored_entries(matrix: sp.spmatrix, perm: NDArray[np.integer] | None,
+                    symmetry: str | None, field: str | None) -> tuple[sp.coo_matrix, str, str]:
+    """The entries of ``A[perm][:, perm]`` to store (one triangle if symmetric), column by column."""
     b = permuted_matrix(matrix, perm)
     if field is None:
         field = ("pattern" if b.dtype == bool else "complex" if np.iscomplexobj(b.data)
@@ -409,22 +408,30 @@ def matrix_market_text(matrix: sp.spmatrix, perm: NDArray[np.integer] | None = N
         keep = row >= col
         row, col, val = row[keep], col[keep], val[keep]
     order = np.lexsort((row, col))  # column by column, as the collection stores them
-    row, col, val = row[order] + 1, col[order] + 1, val[order]
-    columns = [row.astype(str), col.astype(str)]
-    if field == "real":
-        columns.append(val.astype(np.float64).astype(str))
+    if field == "pattern":
+        val = np.ones(row.size)
     elif field == "integer":
-        columns.append(val.astype(np.int64).astype(str))
-    elif field == "complex":
-        columns += [val.real.astype(str), val.imag.astype(str)]
-    body = columns[0]
-    for c in columns[1:]:
-        body = np.char.add(np.char.add(body, " "), c)
-    head = [f"%%MatrixMarket matrix coordinate {field} {symmetry}"]
-    head += [f"% {ln}" for ln in comment.splitlines() if ln.strip()]
-    head.append(f"{b.shape[0]} {b.shape[1]} {row.size}")
-    lines = head + body.tolist()
-    return "\n".join(lines) + "\n"
+        val = val.astype(np.int64)
+    stored = sp.coo_matrix((val[order], (row[order], col[order])), shape=b.shape)
+    return stored, symmetry, field
+
+
+def _write_entries(target: Any, stored: sp.coo_matrix, symmetry: str, field: str,
+                   comment: str) -> None:
+    """scipy's compiled Matrix Market writer: shortest round-trip decimals, zeros kept."""
+    import scipy.io
+
+    scipy.io.mmwrite(target, stored, comment=comment, field=field, symmetry=symmetry)
+
+
+def matrix_market_text(matrix: sp.spmatrix, perm: NDArray[np.integer] | None = None, *,
+                       symmetry: str | None = None, field: str | None = None,
+                       comment: str = "") -> str:
+    """The Matrix Market coordinate text of ``A[perm][:, perm]`` (see :func:`write_matrix_market`)."""
+    stored, symmetry, field = _stored_entries(matrix, perm, symmetry, field)
+    buf = io.BytesIO()
+    _write_entries(buf, stored, symmetry, field, comment)
+    return buf.getvalue().decode("ascii")
 
 
 def write_matrix_market(path: str | os.PathLike[str], matrix: sp.spmatrix,
@@ -444,6 +451,7 @@ def write_matrix_market(path: str | os.PathLike[str], matrix: sp.spmatrix,
         ``symmetric`` (the lower triangle is written) or ``general``; by
         default ``symmetric`` exactly when the permuted matrix equals its
         transpose (a symmetric permutation of a symmetric matrix stays so).
+        Entries are written column by column, explicit zeros included.
     field
         ``pattern``, ``real``, ``integer`` or ``complex``; by default from the
         data type (boolean data: ``pattern``).  Values are written as
@@ -456,8 +464,10 @@ def write_matrix_market(path: str | os.PathLike[str], matrix: sp.spmatrix,
     MeshWriteError
         Missing folder or failed write (any existing file is left as it was).
     """
-    write_bytes_atomic(path, matrix_market_text(matrix, perm, symmetry=symmetry, field=field,
-                                                comment=comment).encode("utf-8"))
+    path = Path(path)
+    stored, symmetry, field = _stored_entries(matrix, perm, symmetry, field)
+    with atomic_folder(path) as tmp, open(tmp / path.name, "wb") as fh:
+        _write_entries(fh, stored, symmetry, field, comment)
 
 
 # --------------------------------------------------------------------------- sizing
