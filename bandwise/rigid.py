@@ -54,7 +54,7 @@ ROTATIONS = _BIT["rx"] | _BIT["ry"] | _BIT["rz"]
 #: Singular values below this fraction of the largest count as zero.
 RANK_RTOL = 1e-8
 #: Largest number of body coordinates of one part the dense analysis accepts.
-MAX_PART_COORDINATES = 4000
+MAX_PART_COORDINATES = 3000
 #: Nodes listed as moving most, per mode.
 MOVING_NODES = 5
 _AXES = "xyz"
@@ -560,15 +560,22 @@ def _constraints(space: str, pts: NDArray[np.float64], bodies: Bodies, frames: _
     return (np.concatenate(rows_r), np.concatenate(rows_c), np.concatenate(rows_v), n_rows)
 
 
-def _null_space(a: NDArray[np.float64], n_cols: int) -> NDArray[np.float64]:
-    """Orthonormal basis of the null space of ``a`` (rows may be many: compressed by QR)."""
+def _null_space(a: NDArray[np.float64] | sp.csr_matrix, n_cols: int) -> NDArray[np.float64]:
+    """Orthonormal basis of the null space of ``a`` (dense or sparse).
+
+    A tall matrix is first compressed, block of rows by block of rows, to its
+    triangular QR factor (same null space), so a part with many held DOFs
+    never needs all its rows as a dense array.
+    """
     if a.shape[0] == 0:
         return np.eye(n_cols)
     chunk = max(4 * n_cols, 20000)
-    if a.shape[0] > chunk:
+    if a.shape[0] > chunk or sp.issparse(a):
         r = np.zeros((0, n_cols))
         for start in range(0, a.shape[0], chunk):
-            r = la.qr(np.vstack([r, a[start:start + chunk]]), mode="r")[0][:n_cols]
+            block = a[start:start + chunk]
+            block = block.toarray() if sp.issparse(block) else block
+            r = la.qr(np.vstack([r, block]), mode="r")[0][:n_cols]
         a = r
     # a tall matrix needs only its right singular vectors: never form the m x m U
     _, s, vt = la.svd(a, full_matrices=a.shape[0] < n_cols)
@@ -755,9 +762,9 @@ def _part_modes(ctx: _Context, p: int, part_bodies: NDArray[np.int64], r: NDArra
     local = np.full(int(cols_all.max()) + 1 if cols_all.size else 0, -1, dtype=np.int64)
     local[cols] = np.arange(cols.size)
     _, row_local = np.unique(r, return_inverse=True)
-    a = np.zeros((int(row_local.max()) + 1 if r.size else 0, cols.size))
     keep = local[c] >= 0 if c.size else np.zeros(0, bool)
-    np.add.at(a, (row_local[keep], local[c[keep]]), v[keep])
+    a = sp.csr_matrix((v[keep], (row_local[keep], local[c[keep]])),
+                      shape=(int(row_local.max()) + 1 if r.size else 0, cols.size))
     null = _null_space(a, cols.size)
     if null.shape[1] == 0:
         return PartModes(p + 1, n_nodes, int(part_bodies.size), ()), (cols, null)
@@ -818,7 +825,7 @@ def _body_motion_of_part_motion(space: str, a: NDArray[np.float64], centre: NDAr
     return np.column_stack([tb, q[None, :] * sizes[:, None]])
 
 
-def _free_rigid_motions(a: NDArray[np.float64], q: NDArray[np.float64]) -> NDArray[np.float64]:
+def _free_rigid_motions(a: sp.csr_matrix, q: NDArray[np.float64]) -> NDArray[np.float64]:
     """Coefficients (part motion coordinates) of the rigid motions the constraints leave free.
 
     Directions that move no DOF (a lone bar's spin) are removed; the rest is
@@ -829,7 +836,7 @@ def _free_rigid_motions(a: NDArray[np.float64], q: NDArray[np.float64]) -> NDArr
     _, s, vt = la.svd(q, full_matrices=True)
     rank_q = int(np.count_nonzero(s > 1e-9 * (s[0] if s.size else 1.0)))
     trivial = vt[rank_q:].T                       # motions that move nothing
-    n_free = _null_space(a @ q, nm) if a.shape[0] else np.eye(nm)
+    n_free = _null_space(np.asarray(a @ q), nm) if a.shape[0] else np.eye(nm)
     if trivial.shape[1]:
         n_free = n_free - trivial @ (trivial.T @ n_free)
     if n_free.shape[1] == 0:
