@@ -37,9 +37,12 @@ __all__ = ["nested_dissection"]
 
 def metis_order(graph: NodeGraph) -> NDArray[np.int64]:
     """METIS nested-dissection order of one connected graph, ``perm[new] = old``."""
-    adjacency = pymetis.CSRAdjacency(np.ascontiguousarray(graph.indptr, dtype=np.int64),
-                                     np.ascontiguousarray(graph.indices, dtype=np.int64))
-    perm, _iperm = pymetis.nested_dissection(adjacency)
+    xadj = np.ascontiguousarray(graph.indptr, dtype=np.int64)
+    adjncy = np.ascontiguousarray(graph.indices, dtype=np.int64)
+    if hasattr(pymetis, "CSRAdjacency"):          # pymetis 2025.2 and later
+        perm, _iperm = pymetis.nested_dissection(pymetis.CSRAdjacency(xadj, adjncy))
+    else:                                         # earlier releases: plain CSR keywords
+        perm, _iperm = pymetis.nested_dissection(xadj=xadj, adjncy=adjncy)
     return np.asarray(perm, dtype=np.int64)
 
 
