@@ -24,7 +24,7 @@ from ..metrics import column_heights, wavefront_profile
 from ..model import Model
 from ..progress import Progress, step
 from . import figures as fg
-from .document import free_mode_count, report_document
+from .document import body_mode_count, report_document
 from .html import json_text, render_html
 from .inputs import ReportInputs
 from .meshview import mesh_view
@@ -110,9 +110,12 @@ def finding_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
 
 
 def mode_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
-    """The nodes each free zero-energy mode moves most (labels from the analysis)."""
+    """The nodes moving most in each mode the given supports leave free.
+
+    Without supports every body is free; marking its nodes would say nothing.
+    """
     modes = inputs.modes
-    if modes is None or inputs.model is None or not free_mode_count(modes):
+    if modes is None or inputs.model is None or not body_mode_count(inputs):
         return {}
     labels = [label for m in modes.modes() for label in m.moving_nodes]
     nodes = node_indices(inputs.model, labels)

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -19,13 +19,12 @@ from ..checks.verdict import failing
 from ..metrics import INDEX_BYTES, VALUE_BYTES, Metrics, metrics
 from .inputs import ReportInputs
 
+if TYPE_CHECKING:
+    from ..compare import Comparison
+    from ..rigid import ZeroEnergyAnalysis
+
 #: The verdict words.
 READY, PROBLEMS, UNCHECKED = "ready", "problems found", "not checked"
-
-#: Figures of an ordering that the tables and charts compare, in order.
-FIGURES = ("bandwidth", "profile", "max_wavefront", "rms_wavefront", "envelope_ops",
-           "banded_bytes", "skyline_bytes")
-
 
 def plain(value: Any) -> Any:
     """Turn numpy scalars, arrays, tuples and dataclass dicts into JSON-ready values."""
@@ -48,11 +47,6 @@ def plain(value: Any) -> Any:
 
 def _as_dict(obj: Any) -> Any:
     return plain(obj.to_dict()) if hasattr(obj, "to_dict") else plain(obj)
-
-
-def free_mode_count(modes: Any) -> int | None:
-    """Zero-energy modes of a :class:`~bandwise.rigid.ZeroEnergyAnalysis` (None if absent)."""
-    return None if modes is None else int(modes.total)
 
 
 def verdict(inputs: ReportInputs) -> dict[str, str]:
@@ -151,7 +145,7 @@ def cholesky_bytes(nnz: int, n_rows: int) -> int:
     return nnz * (VALUE_BYTES + INDEX_BYTES) + (n_rows + 1) * INDEX_BYTES
 
 
-def comparison_data(comparison: Any) -> dict[str, Any]:
+def comparison_data(comparison: Comparison) -> dict[str, Any]:
     """The comparison's own JSON, with the sparse Cholesky storage of each candidate."""
     data = plain(comparison.to_dict())
     for row in data.get("methods", []):
@@ -161,21 +155,19 @@ def comparison_data(comparison: Any) -> dict[str, Any]:
     return data
 
 
-def modes_data(modes: Any) -> dict[str, Any]:
+def modes_data(modes: ZeroEnergyAnalysis) -> dict[str, Any]:
     """The zero-energy analysis' own JSON, with the holds it suggests."""
     data = plain(modes.to_dict())
-    data["suggested_holds"] = [plain(h.to_dict()) for h in getattr(modes, "suggested", ())]
+    data["suggested_holds"] = [plain(h.to_dict()) for h in modes.suggested]
     return data
 
 
 def equations_data(inputs: ReportInputs) -> dict[str, Any]:
     """The equation count's own JSON, with the node order its equations follow."""
     eq = inputs.equations
+    assert eq is not None
     data = plain(eq.to_dict())
-    perm = getattr(eq, "perm", None)
-    chosen = inputs.chosen_perm
-    if perm is None:
-        return data
+    perm, chosen = eq.perm, inputs.chosen_perm
     if chosen is not None and np.array_equal(perm, chosen):
         data["order"] = f"renumbered ({inputs.chosen_method})"
     elif np.array_equal(perm, np.arange(len(perm))):

@@ -5,7 +5,7 @@ from __future__ import annotations
 import datetime as dt
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import NDArray
@@ -14,6 +14,13 @@ from ..dofs import DofLayout
 from ..graph import NodeGraph
 from ..model import Model
 from ..summary import MeshSummary
+
+if TYPE_CHECKING:  # the report reads these results; it does not need their modules
+    from ..checks.findings import Finding
+    from ..compare import Comparison
+    from ..equations import EquationNumbering
+    from ..rigid import ZeroEnergyAnalysis
+    from ..supports import SupportSet
 
 
 def _now() -> dt.datetime:
@@ -37,13 +44,15 @@ class ReportInputs:
         The chosen ordering ``perm[new] = old`` and its name, or None when the
         mesh was not renumbered.
     comparison
-        The comparison of orderings (``bandwise.compare``), or None.
+        The orderings compared (:class:`~bandwise.compare.Comparison`), or None;
+        its best candidate is the "renumbered" ordering unless ``perm`` is given.
     supports
         The applied supports (:class:`~bandwise.supports.SupportSet`), or None.
     modes
-        Zero-energy (rigid-body and mechanism) modes left by the supports, or None.
+        Zero-energy modes (:class:`~bandwise.rigid.ZeroEnergyAnalysis`), or None.
     equations
-        Equation count with held DOFs eliminated, or None.
+        Equations with held DOFs set aside
+        (:class:`~bandwise.equations.EquationNumbering`), or None.
     fail_on
         Lowest finding severity that makes the verdict "problems found"
         (the ``--fail-on`` gate of :mod:`bandwise.checks.verdict`).
@@ -55,13 +64,13 @@ class ReportInputs:
     graph: NodeGraph
     layout: DofLayout | int
     summary: MeshSummary
-    findings: Sequence[Any] | None = None
+    findings: Sequence[Finding] | None = None
     perm: NDArray[np.integer] | None = None
     method: str | None = None
-    comparison: Any | None = None
-    supports: Any | None = None
-    modes: Any | None = None
-    equations: Any | None = None
+    comparison: Comparison | None = None
+    supports: SupportSet | None = None
+    modes: ZeroEnergyAnalysis | None = None
+    equations: EquationNumbering | None = None
     fail_on: str = "error"
     created: dt.datetime = field(default_factory=_now)
 
@@ -73,15 +82,13 @@ class ReportInputs:
     @property
     def chosen_perm(self) -> NDArray[np.integer] | None:
         """The ordering shown as "renumbered": ``perm``, else the comparison's best."""
-        if self.perm is not None:
+        if self.perm is not None or self.comparison is None:
             return self.perm
-        best = getattr(self.comparison, "best", None)
-        return getattr(best, "perm", None)
+        return self.comparison.best.perm
 
     @property
     def chosen_method(self) -> str:
         """Name of :attr:`chosen_perm`."""
-        if self.perm is not None:
+        if self.perm is not None or self.comparison is None:
             return self.method or "given ordering"
-        best = getattr(self.comparison, "best", None)
-        return str(getattr(best, "method", "given ordering"))
+        return self.comparison.best.method
