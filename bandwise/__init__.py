@@ -15,6 +15,7 @@ from importlib.metadata import PackageNotFoundError, version
 
 from .compare import Comparison, OrderingResult, compare_orderings
 from .dofs import DofLayout, dof_layout
+from .equations import EquationNumbering, equation_numbering, write_dof_map
 from .errors import BandwiseError, InputError, MeshReadError, MeshWriteError
 from .frontal import FrontWidth, front_width, frontal_reordering, reordered_elements
 from .graph import NodeGraph, graph_from_matrix, node_graph
@@ -23,7 +24,10 @@ from .meshio_io import read_model, write_model
 from .metrics import Metrics, metrics
 from .model import CellBlock, Model, inverse_permutation
 from .node_map import read_node_map, write_node_map
+from .rigid import ZeroEnergyAnalysis, zero_energy_modes
+from .stiffness import StiffnessCheck, assemble_stiffness, verify_stiffness
 from .summary import MeshSummary, summarise
+from .supports import SupportSet, apply_supports, parse_support, read_support_file
 
 try:
     __version__ = version("bandwise")
@@ -41,4 +45,10 @@ __all__ += [
     "Comparison", "FrontWidth", "OrderingResult", "compare_orderings", "front_width",
     "frontal_reordering", "is_matrix_file", "read_matrix", "read_node_map",
     "reordered_elements", "write_matrix_market", "write_node_map",
+]
+# supports, zero-energy modes, stiffness check, equation numbering
+__all__ += [
+    "EquationNumbering", "StiffnessCheck", "SupportSet", "ZeroEnergyAnalysis",
+    "apply_supports", "assemble_stiffness", "equation_numbering", "parse_support",
+    "read_support_file", "verify_stiffness", "write_dof_map", "zero_energy_modes",
 ]

@@ -54,7 +54,7 @@ ROTATIONS = _BIT["rx"] | _BIT["ry"] | _BIT["rz"]
 #: Singular values below this fraction of the largest count as zero.
 RANK_RTOL = 1e-8
 #: Largest number of body coordinates of one part the dense analysis accepts.
-MAX_PART_COORDINATES = 3000
+MAX_PART_COORDINATES = 1500
 #: Nodes listed as moving most, per mode.
 MOVING_NODES = 5
 _AXES = "xyz"
