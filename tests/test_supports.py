@@ -179,3 +179,95 @@ def test_gmsh41_cell_sets_and_abaqus_node_sets() -> None:
     model = read_model(shared_path("meshes-real", "sfepy", "abaqus_tet.inp"))
     held = apply_supports(model, dof_layout(model), [parse_support("NS1:pinned")])
     assert held.applied[0].nodes.size == model.point_sets["NS1"].size
+
+
+# --------------------------------------------------------------------------- command line
+
+
+def _write_plate(tmp_path):
+    """A small plane plate (the gusset of our demo, coarse) as a gmsh file."""
+    from bandwise.meshio_io import write_model
+
+    model = quad_grid(5, 3, 10.0, 10.0)
+    path = tmp_path / "plate.msh"
+    write_model(model, path)
+    return path
+
+
+def test_check_reports_free_modes_without_supports(runner, cli_app, tmp_path) -> None:
+    import json
+
+    path = _write_plate(tmp_path)
+    result = runner.invoke(cli_app, ["check", str(path), "--json"])
+    assert result.exit_code == 0, result.stderr
+    mesh = json.loads(result.stdout)["meshes"][0]
+    assert mesh["zero_energy_modes"]["total"] == 3          # a free plane body
+    assert mesh["zero_energy_modes"]["per_part"][0]["modes"] == 3
+    assert mesh["supports"] == [] and len(mesh["suggested_supports"]) >= 2
+    assert mesh["equations"]["equations"] == mesh["dofs"]["total"] == 30
+    assert "nodes" in mesh and "current_numbering" in mesh   # existing keys untouched
+    text = runner.invoke(cli_app, ["check", str(path)]).stdout
+    assert "Supports and zero-energy modes" in text and "no supports given" in text
+    assert "zero-energy modes: 3 (3 rigid, 0 mechanism" in text
+
+
+def test_check_with_supports_stiffness_check_and_dof_map(runner, cli_app, tmp_path) -> None:
+    import csv
+    import json
+
+    path = _write_plate(tmp_path)
+    dof_map = tmp_path / "dofs.csv"
+    result = runner.invoke(cli_app, ["check", str(path), "--support", "plane x=0:fixed",
+                                     "--stiffness-check", "--dof-map", str(dof_map), "--json"])
+    assert result.exit_code == 0, result.stderr
+    mesh = json.loads(result.stdout)["meshes"][0]
+    assert mesh["zero_energy_modes"]["total"] == 0
+    assert mesh["supports"][0]["nodes"] == 3 and mesh["supports"][0]["held_dofs"] == 6
+    assert mesh["equations"]["fixed_dofs"] == 6 and mesh["equations"]["equations"] == 24
+    assert mesh["stiffness_check"]["agrees"] is True
+    rows = list(csv.reader(dof_map.open()))
+    assert rows[0] == ["node", "dof", "equation"] and len(rows) == 31
+    assert sum(r[2] == "fixed" for r in rows[1:]) == 6
+
+
+def test_supports_that_leave_modes_fail_the_gate(runner, cli_app, tmp_path) -> None:
+    path = _write_plate(tmp_path)
+    result = runner.invoke(cli_app, ["check", str(path), "--support", "node 1:pinned"])
+    assert result.exit_code == 1                              # one rotation left
+    assert "supports.free_modes" in result.stdout
+    assert "rotation about the axis through node 1 along z of part 1" in result.stdout
+    assert 'suggested holds (not applied): --support "node' in result.stdout
+
+
+def test_support_file_option(runner, cli_app, tmp_path) -> None:
+    path = _write_plate(tmp_path)
+    spec = tmp_path / "plate.toml"
+    spec.write_text('[[support]]\nplane = "x=0"\ndofs = "pinned"\n')
+    result = runner.invoke(cli_app, ["check", str(path), "--supports", str(spec)])
+    assert result.exit_code == 0, result.stderr
+    assert "zero-energy modes: 0" in result.stdout
+
+
+@pytest.mark.parametrize("args, words", [
+    (["--support", "plane x=0:uq"], "unknown DOF name 'uq'"),
+    (["--support", "WALL:fixed"], "named 'WALL'"),
+    (["--support", "plane x=99:ux"], "picks no node"),
+    (["--support", "plane x=0:uz"], "do not carry uz"),
+    (["--supports", "BAD_TOML"], "TOML syntax error"),
+])
+def test_bad_support_options_exit_2_with_one_line(runner, cli_app, tmp_path, args, words) -> None:
+    path = _write_plate(tmp_path)
+    (tmp_path / "bad.toml").write_text("[[support]\n")
+    args = [str(tmp_path / "bad.toml") if a == "BAD_TOML" else a for a in args]
+    result = runner.invoke(cli_app, ["check", str(path), *args])
+    assert result.exit_code == 2
+    assert words in result.stderr and len(result.stderr.strip().splitlines()) == 1
+    assert "Traceback" not in result.stderr
+
+
+def test_dof_map_takes_one_mesh(runner, cli_app, tmp_path) -> None:
+    path = _write_plate(tmp_path)
+    result = runner.invoke(cli_app, ["check", str(path), str(path), "--dof-map",
+                                     str(tmp_path / "x.csv")])
+    assert result.exit_code == 2 and "--dof-map takes one mesh file" in result.stderr
+    assert not (tmp_path / "x.csv").exists()
