@@ -54,7 +54,10 @@ ROTATIONS = _BIT["rx"] | _BIT["ry"] | _BIT["rz"]
 #: Singular values below this fraction of the largest count as zero.
 RANK_RTOL = 1e-8
 #: Largest number of body coordinates of one part the dense analysis accepts.
-MAX_PART_COORDINATES = 1500
+MAX_PART_COORDINATES = 600
+#: Above it, a sparse eigen-solver is used, up to this many coordinates and modes.
+MAX_SPARSE_COORDINATES = 300_000
+MAX_SPARSE_MODES = 400
 #: Nodes listed as moving most, per mode.
 MOVING_NODES = 5
 _AXES = "xyz"
@@ -587,6 +590,34 @@ def _null_space(a: NDArray[np.float64] | sp.csr_matrix, n_cols: int) -> NDArray[
     return vt[rank:].T.copy()
 
 
+def _sparse_null_space(a: sp.csr_matrix) -> NDArray[np.float64] | None:
+    """Null space of a large sparse constraint matrix from its Gram matrix ``A^T A``.
+
+    The smallest eigenpairs come from shift-invert Lanczos (``eigsh`` with
+    sigma slightly below zero, so the shifted matrix is definite), asking for
+    more until one eigenvalue is clearly nonzero; an eigenvalue of ``A^T A``
+    counts as zero below ``RANK_RTOL**2`` times the largest (bounded by the
+    largest absolute row sum), the square of the dense rule.  None when there
+    are more than :data:`MAX_SPARSE_MODES`.
+    """
+    from scipy.sparse.linalg import eigsh
+
+    gram = (a.T @ a).tocsc()
+    n = gram.shape[0]
+    top = max(float(abs(gram).sum(axis=1).max()), 1.0)
+    tol = RANK_RTOL**2 * top
+    k = min(n - 1, 12)
+    while True:
+        w, v = eigsh(gram, k=k, sigma=-1e-6 * top, which="LM", tol=1e-12)
+        zero = w <= tol
+        if not zero.all():
+            basis, _ = la.qr(v[:, zero], mode="economic")
+            return basis
+        if k >= min(n - 1, MAX_SPARSE_MODES):
+            return None
+        k = min(n - 1, MAX_SPARSE_MODES, 2 * k)
+
+
 # --------------------------------------------------------------------------- analysis
 
 
@@ -619,7 +650,9 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
     SVD per part of a matrix with one column per body coordinate and one row
     per held or shared DOF (compressed by QR when tall).  Parts with more
     than :data:`MAX_PART_COORDINATES` body coordinates (large pin-jointed
-    trusses) are reported as not analysed.
+    trusses) use shift-invert Lanczos on the sparse Gram matrix instead, up
+    to :data:`MAX_SPARSE_COORDINATES` coordinates and :data:`MAX_SPARSE_MODES`
+    modes; larger ones are reported as not analysed.
     """
     labels_word = model.node_labels()[1]
     if supports is None:
@@ -754,10 +787,10 @@ def _part_modes(ctx: _Context, p: int, part_bodies: NDArray[np.int64], r: NDArra
     nm = _n_motions(ctx.space)
     cols_all = (part_bodies[:, None] * nm + np.arange(nm)).ravel()
     cols = cols_all[valid_col[cols_all]]
-    if cols.size > MAX_PART_COORDINATES:
+    if cols.size > MAX_SPARSE_COORDINATES:
         return PartModes(p + 1, n_nodes, int(part_bodies.size), (), False,
                          f"{part_bodies.size} bodies ({cols.size} coordinates) exceed the "
-                         f"dense limit of {MAX_PART_COORDINATES}; not analysed"), \
+                         f"limit of {MAX_SPARSE_COORDINATES}; not analysed"), \
             (cols, np.zeros((cols.size, 0)))
     local = np.full(int(cols_all.max()) + 1 if cols_all.size else 0, -1, dtype=np.int64)
     local[cols] = np.arange(cols.size)
@@ -765,7 +798,15 @@ def _part_modes(ctx: _Context, p: int, part_bodies: NDArray[np.int64], r: NDArra
     keep = local[c] >= 0 if c.size else np.zeros(0, bool)
     a = sp.csr_matrix((v[keep], (row_local[keep], local[c[keep]])),
                       shape=(int(row_local.max()) + 1 if r.size else 0, cols.size))
-    null = _null_space(a, cols.size)
+    if cols.size > MAX_PART_COORDINATES:
+        null = _sparse_null_space(a)
+        if null is None:
+            return PartModes(p + 1, n_nodes, int(part_bodies.size), (), False,
+                             f"more than {MAX_SPARSE_MODES} zero-energy modes among "
+                             f"{part_bodies.size} bodies; not analysed"), \
+                (cols, np.zeros((cols.size, 0)))
+    else:
+        null = _null_space(a, cols.size)
     if null.shape[1] == 0:
         return PartModes(p + 1, n_nodes, int(part_bodies.size), ()), (cols, null)
     q, centre, size = _part_rigid_motions(ctx, part_bodies, cols, nm)

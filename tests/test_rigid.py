@@ -283,3 +283,22 @@ def test_json_form_has_totals_per_part_and_modes() -> None:
     free = _analyse(hex_grid(2, 2, 2))[0]
     shift = [m for m in free.modes() if m.description.startswith("translation")]
     assert len(shift) == 3 and all(m.moving_nodes == () for m in shift)  # all alike
+
+
+def test_large_truss_takes_the_sparse_path_and_matches_calladine() -> None:
+    # a 10 x 10 panel grid truss: 121 joints; braced (one diagonal per panel) it is rigid,
+    # unbraced its mechanisms are 2j - 3 - rank(equilibrium matrix) (Calladine 1978)
+    from bandwise.rigid import MAX_PART_COORDINATES
+
+    grid = quad_grid(11, 11)
+    c = grid.cells[0].data
+    sides = np.unique(np.sort(np.vstack([c[:, [0, 1]], c[:, [1, 2]], c[:, [2, 3]],
+                                         c[:, [3, 0]]]), axis=1), axis=0)
+    braced = np.vstack([sides, c[:, [0, 2]]])
+    assert 3 * len(braced) > MAX_PART_COORDINATES            # beyond the dense limit
+    analysis = _analyse(line_frame(grid.points[:, :2], braced), dofs_per_node=2)[0]
+    assert analysis.complete and analysis.total == 3
+    loose = _analyse(line_frame(grid.points[:, :2], sides), dofs_per_node=2)[0]
+    rigid = sum(p.n_rigid for p in loose.parts)
+    assert rigid == 3
+    assert loose.total - rigid == _calladine_mechanisms(grid.points, sides, 2)
