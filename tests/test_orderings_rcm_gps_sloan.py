@@ -200,6 +200,20 @@ def test_bandwidth_is_at_least_half_the_largest_degree(graph):
 
 
 @given(random_meshes())
+def test_bandwidth_is_at_least_the_diameter_bound(graph):
+    # For a connected part of n_p nodes and diameter D, any numbering has
+    # b >= ceil((n_p - 1) / D): a shortest path between the first and last
+    # node of the part covers n_p - 1 positions in D steps (common practice;
+    # Chinn et al., J. Graph Theory 6 (1982) 223-254).  A part's induced
+    # numbering is no wider than the whole, so the bound holds for the graph.
+    ng = as_networkx(graph)
+    bound = max((math.ceil((len(c) - 1) / nx.diameter(ng.subgraph(c)))
+                 for c in nx.connected_components(ng) if len(c) > 1), default=0)
+    for name, order in ORDERS.items():
+        assert metrics(graph, order(graph)).bandwidth >= bound, name
+
+
+@given(random_meshes())
 def test_sloan_key_numbers_in_decreasing_key(graph):
     # The key replaces Sloan's distance term: with the global weight large
     # against the local one, each part is numbered in decreasing key

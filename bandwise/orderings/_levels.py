@@ -38,7 +38,7 @@ from ..graph import NodeGraph
 NO_CAP = np.iinfo(np.int64).max
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(cache=True, nogil=True)
 def _sort_by_degree(order, lo, hi, deg):  # pragma: no cover - compiled
     """Stable insertion sort of ``order[lo:hi]`` by increasing degree (short runs)."""
     for a in range(lo + 1, hi):
@@ -115,8 +115,17 @@ def _sweep(indptr, indices, deg, root, seen, stamp, order, start, level_ptr,
                 tail += 1
         if tail > batch:
             band = max(band, tail - head)
-            if by_degree and tail - batch > 1:
-                _sort_by_degree(order, batch, tail, deg)
+            if by_degree:
+                # stable insertion sort of the new batch by degree (written
+                # out: a compiled call per node costs more than the sort)
+                for a in range(batch + 1, tail):
+                    u = order[a]
+                    du = deg[u]
+                    b = a - 1
+                    while b >= batch and deg[order[b]] > du:
+                        order[b + 1] = order[b]
+                        b -= 1
+                    order[b + 1] = u
     level_ptr[depth] = tail
     return tail - start, depth, width, band
 
@@ -189,7 +198,7 @@ def _pseudo_diameter(indptr, indices, deg, low, seen, stamp, trees, tree_ptr, st
                      cand):  # pragma: no cover - compiled
     """Ends ``(s, e)`` of a pseudo-diameter of the part containing ``low``.
 
-    Gibbs-Poole-Stockmeyer step I with Sloan's (1989) refinements: start at
+    Gibbs-Poole-Stockmeyer step I with Sloan-style (1989) refinements: start at
     ``low``, a node of minimum degree of its part; build its level
     structure; try the last-level candidates (:func:`_shrunk_last_level`) in
     increasing degree, abandoning any search as soon as a level is as wide
@@ -275,11 +284,11 @@ def pseudo_diameter(graph: NodeGraph, nodes_of_part: NDArray[np.integer]) -> tup
     Notes
     -----
     Step I of Gibbs, Poole and Stockmeyer (1976), started at a node of
-    minimum degree, with two refinements of Sloan (1989): only one
-    last-level node of each degree is tried ("shrinking", a simplification
-    of GPS, who try them all), and a trial search stops as soon as one of
-    its levels is as wide as the narrowest complete structure so far
-    ("short-circuiting").  Cost: a few breadth-first searches of the part,
+    minimum degree, with two refinements in the manner of Sloan (1989): the
+    list of last-level nodes to try is shrunk (here to one node of each
+    degree, lowest degree first; GPS try them all), and a trial search stops
+    as soon as one of its levels is as wide as the narrowest complete
+    structure so far ("short-circuiting", also in Lewis 1982).  Cost: a few breadth-first searches of the part,
     O(nodes + edges) each.
 
     References

@@ -270,17 +270,20 @@ def gps(graph: NodeGraph) -> NDArray[np.int64]:
 
     - step I tries only one last-level node of each degree and abandons a
       trial structure as soon as it is as wide as the narrowest so far
-      (Sloan's 1989 shrinking and short-circuiting, see
-      :func:`bandwise.orderings._levels.pseudo_diameter`), where GPS try
-      every last-level node;
+      (shrinking and short-circuiting in the manner of Sloan 1989 and Lewis
+      1982, see :func:`bandwise.orderings._levels.pseudo_diameter`), where
+      GPS try every last-level node;
+    - because of the short-circuiting, a trial structure that is deeper
+      but no narrower than an earlier complete trial is abandoned instead
+      of restarting the search (Lewis 1982 does the same);
     - the numbering of each part is reversed at the end, as in reverse
       Cuthill-McKee: the bandwidth is unchanged and the profile is usually
       smaller (Liu and Sherman 1976 prove it never grows for Cuthill-McKee
       orderings); Lewis's code chooses the direction from the tie-breaking
       of an earlier program instead.
 
-    Cost: a few breadth-first searches per part plus sorting each level by
-    degree, O((n + nnz) log) at worst.
+    Cost: a few breadth-first searches per part, O(n + nnz) each, plus a
+    sort of each level by degree and of each node's queued neighbours.
 
     Examples
     --------
