@@ -976,11 +976,13 @@ def _moving_nodes(ctx: _Context, part_bodies: NDArray[np.int64], cols: NDArray[n
         amp = np.linalg.norm(u, axis=1) + np.linalg.norm(q[body], axis=1) * 1e-9
     if amp.size == 0 or np.ptp(amp) <= 1e-9 * amp.max():
         return ()                                   # every node moves alike
+    # one amplitude per node (a joint belongs to several bodies; pairs sorted by node)
+    starts = np.flatnonzero(np.r_[True, node[1:] != node[:-1]])
+    node, amp = node[starts], np.maximum.reduceat(amp, starts)
     k = min(MOVING_NODES, amp.size)
     top = np.argpartition(-amp, k - 1)[:k]
     top = top[np.argsort(-amp[top], kind="stable")]
-    seen = dict.fromkeys(int(ctx.labels[node[i]]) for i in top if amp[i] > 1e-9 * amp.max())
-    return tuple(seen)
+    return tuple(int(ctx.labels[node[i]]) for i in top if amp[i] > 1e-9 * amp.max())
 
 
 def _fmt_point(p: NDArray[np.float64], scale: float) -> str:
