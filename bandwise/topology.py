@@ -182,8 +182,9 @@ class FacetTable:
         ``(f, 4)`` local corner indices of the facets of each block, ``-1`` padded.
     starts
         Index of the first facet of each block, and the total at the end.
-    group
-        Id of the distinct facet (same node set) of each facet.
+    free
+        Sorted indices of the free facets, owned by one cell only (the
+        boundary faces of solids, boundary edges of plane and shell meshes).
     multiplicity
         Number of cells sharing each distinct facet: 1 on the free boundary,
         2 inside a conforming mesh, more at a non-manifold junction.
@@ -192,6 +193,9 @@ class FacetTable:
         blocks), ``-1`` for cells with no stiffness.
     n_blocks
         Number of face-connected blocks.
+    cell_first_facet
+        For every cell of the model, the smallest sorted position among its
+        facets' node sets (cells with one node set share it); ``-1`` if none.
     """
 
     model: Model = field(repr=False)
@@ -199,15 +203,23 @@ class FacetTable:
     entry_rows: tuple[NDArray[np.int64], ...]
     entry_local: tuple[NDArray[np.int64], ...]
     starts: NDArray[np.int64]
-    group: NDArray[np.int64]
+    free: NDArray[np.int64]
     multiplicity: NDArray[np.int64]
     cell_labels: NDArray[np.int64]
     n_blocks: int
+    cell_first_facet: NDArray[np.int64] = field(repr=False)
+
+    @property
+    def n_facets(self) -> int:
+        """Number of facets, counted once per owning cell."""
+        return int(self.starts[-1])
 
     @property
     def is_free(self) -> NDArray[np.bool_]:
         """True for facets owned by exactly one cell (boundary faces / edges)."""
-        return self.multiplicity[self.group] == 1
+        mask = np.zeros(self.n_facets, dtype=bool)
+        mask[self.free] = True
+        return mask
 
     def owner_of(self, idx: NDArray[np.integer]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
         """(cell block index, row in that block) of the cells owning facets ``idx``."""
@@ -239,7 +251,7 @@ class FacetTable:
         return out
 
     def __repr__(self) -> str:
-        return (f"FacetTable({len(self.group)} facets, {len(self.multiplicity)} distinct, "
+        return (f"FacetTable({self.n_facets} facets, {len(self.multiplicity)} distinct, "
                 f"{self.n_blocks} face-connected blocks)")
 
 
@@ -277,26 +289,28 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
         data = np.ascontiguousarray(model.cells[bi].data, dtype=np.int64)
         _facet_keys(data, rows, local, (local >= 0).sum(axis=1).astype(np.int64), width, bits,
                     exact, keys[start:start + rows.size * len(local)])
-    order = np.argsort(keys)
-    cell_of = _facet_cells(entries, offsets)
-    parent = np.arange(int(offsets[-1]), dtype=np.int64)
     if exact:
-        group, mult = _runs(keys, order, cell_of, parent)
+        sorted_keys, order = _radix_sort(keys, width * bits)
     else:
-        group, mult = _runs_checked(model, entries, keys, order, cell_of, parent)
+        order = np.argsort(keys)
+        sorted_keys = keys[order]
+    n_cells = int(offsets[-1])
+    enf = np.array([len(local) for _, _, local in entries] or [1], dtype=np.int64)
+    ecells = np.concatenate([offsets[bi] + rows for bi, rows, _ in entries] or
+                            [np.zeros(0, np.int64)])
+    erow0 = np.cumsum([0] + [rows.size for _, rows, _ in entries]).astype(np.int64)
+    parent = np.arange(n_cells, dtype=np.int64)
+    if not exact:
+        sorted_keys, order = _checked_runs(model, entries, keys, order)
+    mult, free, first_facet = _runs(sorted_keys, order, starts, enf, ecells, erow0,
+                                    parent, n_cells)
     coupled = np.zeros(int(offsets[-1]), dtype=np.bool_)
     for (bi, rows, _) in entries:
         coupled[offsets[bi] + rows] = True
     labels, n_blocks = _compact_roots(parent, coupled)
     return FacetTable(model, np.array([e[0] for e in entries], dtype=np.int64),
                       tuple(e[1] for e in entries), tuple(e[2] for e in entries), starts,
-                      group, mult, labels, int(n_blocks))
-
-
-def _facet_cells(entries: list[Any], offsets: NDArray[np.int64]) -> NDArray[np.int64]:
-    """Global cell id (file order over all blocks) owning each facet."""
-    parts = [np.repeat(offsets[bi] + rows, len(local)) for bi, rows, local in entries]
-    return np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64)
+                      np.sort(free), mult, labels, int(n_blocks), first_facet)
 
 
 @numba.njit(cache=True, nogil=True)
@@ -329,58 +343,102 @@ def _facet_keys(data, rows, local, widths, width, bits, exact, out):  # pragma: 
 
 
 @numba.njit(cache=True, nogil=True)
-def _runs(keys, order, cell_of, parent):  # pragma: no cover - compiled
-    """Group ids and sizes of runs of equal sorted keys; join the cells of each run."""
+def _runs(sorted_keys, order, starts, enf, ecells, erow0, parent, n_cells):  # pragma: no cover
+    """Walk the runs of equal sorted keys: sizes, free facets, cells joined per run.
+
+    Returns the size of each run (distinct facet), the facets alone in their
+    run, and for every cell the first run position among its facets.
+    """
     n = order.size
-    group = np.empty(n, dtype=np.int64)
     mult = np.zeros(n, dtype=np.int64)
+    free = np.empty(n, dtype=np.int64)
+    first_facet = np.full(n_cells, -1, dtype=np.int64)
+    n_free = 0
     g = -1
     first = 0
-    for i in range(n):
-        f = order[i]
-        if i == 0 or keys[f] != keys[order[i - 1]]:
+    run_start = 0
+    for i in range(n + 1):
+        if i == n or i == 0 or sorted_keys[i] != sorted_keys[i - 1]:
+            if i > 0 and i - run_start == 1:
+                free[n_free] = order[run_start]
+                n_free += 1
+            if i == n:
+                break
             g += 1
-            first = cell_of[f]
+            run_start = i
+        f = order[i]
+        e = 0
+        while f >= starts[e + 1]:
+            e += 1
+        cell = ecells[erow0[e] + (f - starts[e]) // enf[e]]
+        if i == run_start:
+            first = cell
         else:
-            _union(parent, first, cell_of[f])
-        group[f] = g
+            _union(parent, first, cell)
+        if first_facet[cell] == -1:
+            first_facet[cell] = g
         mult[g] += 1
-    return group, mult[:g + 1].copy()
+    return mult[:g + 1].copy(), free[:n_free].copy(), first_facet
 
 
 @numba.njit(cache=True, nogil=True)
-def _union(parent, a, b):  # pragma: no cover - compiled
-    ra = _find(parent, a)
-    rb = _find(parent, b)
-    if ra < rb:
-        parent[rb] = ra
-    elif rb < ra:
-        parent[ra] = rb
+def _radix_sort(keys, key_bits):  # pragma: no cover - compiled
+    """Sorted copy of non-negative ``keys`` below ``2**key_bits`` and the permutation.
 
-
-def _runs_checked(model: Model, entries: list[Any], keys: NDArray[np.int64],
-                  order: NDArray[np.int64], cell_of: NDArray[np.int64],
-                  parent: NDArray[np.int64]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """As :func:`_runs` for hashed keys: equal tuples checked, collisions resolved."""
-    tuples = []
-    for bi, rows, _ in entries:
-        nodes, _ = facets(model.cells[bi].type, model.cells[bi].data[rows])
-        pad = MAX_FACET_NODES - nodes.shape[1]
-        if pad:
-            nodes = np.concatenate([nodes, np.full((len(nodes), pad), -1, np.int64)], axis=1)
-        tuples.append(np.sort(nodes, axis=1))
-    t = np.concatenate(tuples)
-    sorted_t = t[order]
-    sorted_k = keys[order]
-    new = np.ones(len(order), dtype=bool)
-    new[1:] = (sorted_k[1:] != sorted_k[:-1]) | (sorted_t[1:] != sorted_t[:-1]).any(axis=1)
-    if (new[1:] & (sorted_k[1:] == sorted_k[:-1])).any():  # a hash collision
-        order = np.lexsort(t.T[::-1])
-        sorted_t = t[order]
-        new[1:] = (sorted_t[1:] != sorted_t[:-1]).any(axis=1)
-    dense = np.empty(len(order), dtype=np.int64)
-    dense[order] = np.cumsum(new) - 1
-    return _runs(dense, order, cell_of, parent)
+    Most-significant-digit radix sort, 8 bits a pass, insertion sort for
+    small buckets: the first pass writes 256 streams and later passes work on
+    pieces that fit in cache, which matters more than the operation count.
+    """
+    n = keys.size
+    src_k = keys.copy()
+    src_i = np.arange(n)
+    tmp_k = np.empty_like(src_k)
+    tmp_i = np.empty_like(src_i)
+    stack_lo = np.empty(64 * 256, dtype=np.int64)
+    stack_hi = np.empty(64 * 256, dtype=np.int64)
+    stack_shift = np.empty(64 * 256, dtype=np.int64)
+    top = 0
+    stack_lo[0], stack_hi[0], stack_shift[0] = 0, n, max(key_bits - 8, 0)
+    top = 1
+    count = np.empty(257, dtype=np.int64)
+    while top > 0:
+        top -= 1
+        lo, hi, shift = stack_lo[top], stack_hi[top], stack_shift[top]
+        if hi - lo <= 32:
+            for a in range(lo + 1, hi):
+                k, i = src_k[a], src_i[a]
+                q = a
+                while q > lo and src_k[q - 1] > k:
+                    src_k[q] = src_k[q - 1]
+                    src_i[q] = src_i[q - 1]
+                    q -= 1
+                src_k[q] = k
+                src_i[q] = i
+            continue
+        count[:] = 0
+        for j in range(lo, hi):
+            count[((src_k[j] >> shift) & 0xFF) + 1] += 1
+        for d in range(256):
+            count[d + 1] += count[d]
+        for j in range(lo, hi):
+            d = (src_k[j] >> shift) & 0xFF
+            p = lo + count[d]
+            tmp_k[p] = src_k[j]
+            tmp_i[p] = src_i[j]
+            count[d] += 1
+        src_k[lo:hi] = tmp_k[lo:hi]
+        src_i[lo:hi] = tmp_i[lo:hi]
+        if shift == 0:
+            continue
+        nxt = max(shift - 8, 0)
+        prev = lo
+        for d in range(256):  # count[d] is now the end of digit d
+            end = lo + count[d]
+            if end - prev > 1:
+                stack_lo[top], stack_hi[top], stack_shift[top] = prev, end, nxt
+                top += 1
+            prev = end
+    return src_k, src_i
 
 
 @numba.njit(cache=True, nogil=True)
@@ -402,6 +460,38 @@ def _mix(h, v):  # pragma: no cover - compiled
     h ^= (h >> 31) & 0x1FFFFFFFF
     h *= 0x14D049BB133111EB
     return h ^ ((h >> 29) & 0x7FFFFFFFF)
+
+
+@numba.njit(cache=True, nogil=True)
+def _union(parent, a, b):  # pragma: no cover - compiled
+    ra = _find(parent, a)
+    rb = _find(parent, b)
+    if ra < rb:
+        parent[rb] = ra
+    elif rb < ra:
+        parent[ra] = rb
+
+
+def _checked_runs(model: Model, entries: list[Any], keys: NDArray[np.int64],
+                  order: NDArray[np.int64]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Dense run keys for hashed keys: equal tuples checked, collisions resolved."""
+    tuples = []
+    for bi, rows, _ in entries:
+        nodes, _ = facets(model.cells[bi].type, model.cells[bi].data[rows])
+        pad = MAX_FACET_NODES - nodes.shape[1]
+        if pad:
+            nodes = np.concatenate([nodes, np.full((len(nodes), pad), -1, np.int64)], axis=1)
+        tuples.append(np.sort(nodes, axis=1))
+    t = np.concatenate(tuples)
+    sorted_t = t[order]
+    sorted_k = keys[order]
+    new = np.ones(len(order), dtype=bool)
+    new[1:] = (sorted_k[1:] != sorted_k[:-1]) | (sorted_t[1:] != sorted_t[:-1]).any(axis=1)
+    if (new[1:] & (sorted_k[1:] == sorted_k[:-1])).any():  # a hash collision
+        order = np.lexsort(t.T[::-1])
+        sorted_t = t[order]
+        new[1:] = (sorted_t[1:] != sorted_t[:-1]).any(axis=1)
+    return np.cumsum(new) - 1, order
 
 
 @numba.njit(cache=True, nogil=True)

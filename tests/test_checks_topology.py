@@ -143,6 +143,6 @@ def test_group_node_sets_ignores_order():
 def test_nodes_of_recovers_facets():
     m = quad_grid(3, 2)
     t = facet_table(m)
-    nodes = t.nodes_of(np.arange(len(t.group)))
+    nodes = t.nodes_of(np.arange(t.n_facets))
     expect, _ = facets("quad", m.cells[0].data)
     assert (nodes[:, :2] == expect).all() and (nodes[:, 2:] == -1).all()

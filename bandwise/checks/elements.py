@@ -145,10 +145,8 @@ def _duplicates(ctx: CheckContext) -> list[Finding]:
     """
     t = ctx.table
     hits = _Hits.empty()
-    smallest = [t.group[t.starts[e]:t.starts[e + 1]].reshape(len(rows), -1).min(axis=1)
-                for e, rows in enumerate(t.entry_rows)]
-    if not smallest:
-        return []
+    smallest = [t.cell_first_facet[ctx.offsets[b] + rows]
+                for b, rows in zip(t.entry_block, t.entry_rows)]
     key = np.concatenate(smallest)
     width = max(ctx.model.cells[b].data.shape[1] for b in t.entry_block)
     rows_sorted = np.full((len(key), width), -1, dtype=np.int64)

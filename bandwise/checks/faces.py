@@ -20,9 +20,9 @@ from .findings import Finding
 def check_free_facets(ctx: CheckContext) -> list[Finding]:
     """Count the free facets and report those that coincide with another free facet."""
     t = ctx.table
-    if len(t.group) == 0:
+    if t.n_facets == 0:
         return []
-    free = np.flatnonzero(t.is_free)
+    free = t.free
     free_block, _ = t.owner_of(free)
     dims = np.asarray(ctx.dims)[free_block]
     out = []
@@ -64,9 +64,7 @@ def _coincident_facets(ctx: CheckContext, rows: NDArray[np.int64]) -> NDArray[np
     if pairs.size == 0:
         return np.zeros((0, 2), dtype=np.int64)
     a, b = pairs[:, 0], pairs[:, 1]
-    same_shape = k[a] == k[b]
-    distinct = t.group[rows[a]] != t.group[rows[b]]
-    pairs = pairs[same_shape & distinct]
+    pairs = pairs[k[a] == k[b]]  # free facets never share a node set: no self matches
     if pairs.size == 0:
         return np.zeros((0, 2), dtype=np.int64)
     # every corner of one facet within tol of some corner of the other

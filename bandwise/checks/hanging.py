@@ -23,9 +23,9 @@ NEAREST = 16
 def check_hanging_nodes(ctx: CheckContext) -> list[Finding]:
     """Report corner nodes of free facets that lie inside another free facet."""
     t = ctx.table
-    if len(t.group) == 0:
+    if t.n_facets == 0:
         return []
-    free = np.flatnonzero(t.is_free)
+    free = t.free
     free_block, _ = t.owner_of(free)
     dims = np.asarray(ctx.dims)[free_block]
     free = free[dims >= 2]
