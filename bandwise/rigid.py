@@ -1161,8 +1161,42 @@ def _suggest(ctx: _Context, parts: tuple[PartModes, ...],
         if not rows:
             continue
         w = np.vstack(rows)
-        _, _, piv = la.qr(w.T, pivoting=True, mode="economic")
-        for i in piv[:modes.shape[1]]:
+        for i in _pick_holds(w, np.array([n for n, _ in names]), modes.shape[1]):
             node, bit = names[i]
             holds[node] = holds.get(node, 0) | bit
     return tuple(SuggestedHold(int(ctx.labels[v]), mask_names(m)) for v, m in sorted(holds.items()))
+
+
+#: Up to this many modes (and candidate nodes) the holds are chosen node by node.
+GREEDY_MODES, GREEDY_NODES = 12, 300
+
+
+def _pick_holds(w: NDArray[np.float64], node_of: NDArray[np.int64], n_modes: int) -> list[int]:
+    """Rows of ``w`` (candidate DOFs x modes) to hold so that no mode is left.
+
+    Few modes: node by node, each time the node whose DOFs remove the most
+    remaining modes (ties: the larger motion), so a free solid gets the
+    familiar 3-2-1 pattern of three nodes.  Many: one pivoted QR over all rows.
+    """
+    nodes = np.unique(node_of)
+    if n_modes > GREEDY_MODES or nodes.size > GREEDY_NODES:
+        _, _, piv = la.qr(w.T, pivoting=True, mode="economic")
+        return [int(i) for i in piv[:n_modes]]
+    picked: list[int] = []
+    basis = np.zeros((0, n_modes))
+    while len(picked) < n_modes:
+        rest = w - (w @ basis.T) @ basis
+        best, best_score = None, (0, 0.0)
+        for v in nodes:
+            rows = np.flatnonzero(node_of == v)
+            sv = la.svd(rest[rows], compute_uv=False)
+            score = (int(np.count_nonzero(sv > 1e-6 * max(sv.max(initial=0), 1.0))),
+                     float(sv.sum()))
+            if score > best_score:
+                best, best_score = rows, score
+        if best is None:
+            break                                   # the candidates cannot hold the rest
+        _, _, piv = la.qr(rest[best].T, pivoting=True, mode="economic")
+        picked.extend(int(best[i]) for i in piv[:best_score[0]])
+        basis = la.orth(w[picked].T).T
+    return picked

@@ -192,6 +192,12 @@ def test_suggested_holds_remove_every_mode() -> None:
         assert after.total == 0
 
 
+def test_free_solid_gets_the_3_2_1_holds() -> None:
+    # common practice: hold 3 DOFs at one node, 2 at a second, 1 at a third
+    holds = _analyse(hex_grid(3, 3, 3))[0].suggested
+    assert sorted(len(h.dofs.split()) for h in holds) == [1, 2, 3]
+
+
 def test_node_ids_label_the_descriptions() -> None:
     model = hex_grid(2, 2, 2)
     model.node_ids = np.arange(101, 109)
