@@ -69,6 +69,8 @@ figcaption { font-size: 13px; color: var(--muted); margin-top: 4px; }
 tr.kept td { font-weight: 700; }
 ul.gaps li { margin: 3px 0; }
 footer { margin-top: 40px; font-size: 13px; color: var(--muted); }
+nav.contents { font-size: 14px; margin: 6px 0 4px; }
+nav.contents a { color: var(--ink); }
 @media print {
   body { max-width: none; padding: 0; font-size: 11pt; }
   h2 { break-after: avoid; }
@@ -76,6 +78,7 @@ footer { margin-top: 40px; font-size: 13px; color: var(--muted); }
   figure, table, .finding { break-inside: avoid; }
   .verdict, .caution, th { background: none !important; }
   a { color: inherit; text-decoration: none; }
+  nav.contents { display: none; }
 }
 @page { size: A4; margin: 16mm 14mm; }
 """
@@ -440,6 +443,20 @@ def gaps_section(doc: Mapping[str, Any]) -> str:
             "</ul></section>")
 
 
+def contents_nav(doc: Mapping[str, Any]) -> str:
+    """Links to the sections this report has (plain anchors: no script)."""
+    present = [("findings", "Findings", doc.get("findings") is not None),
+               ("mesh", f"The {doc['subject']}", True),
+               ("sizing", "Matrix size and numbering", True),
+               ("orderings", "Orderings compared", doc.get("comparison") is not None),
+               ("supports", "Supports, free modes and equations",
+                any(doc.get(k) is not None for k in ("supports", "modes", "equations"))),
+               ("not-analysed", "Not analysed", True)]
+    links = " &middot; ".join(f'<a href="#{anchor}">{esc(title)}</a>'
+                              for anchor, title, shown_ in present if shown_)
+    return f'<nav class="contents">Contents: {links}</nav>'
+
+
 def render_html(doc: Mapping[str, Any], images: Mapping[str, bytes]) -> str:
     """The report page from the document and the PNG bytes of its figures.
 
@@ -462,6 +479,7 @@ def render_html(doc: Mapping[str, Any], images: Mapping[str, bytes]) -> str:
 
     body = [
         header_section(doc),
+        contents_nav(doc),
         findings_section(doc, figs("findings")),
         mesh_section(doc, "" if doc.get("findings") is not None else figs("findings")),
         sizing_section(doc, figs("sizing")),
