@@ -360,6 +360,10 @@ def test_sloan_rejects_bad_options():
     with pytest.raises(InputError):
         sloan(g, w1=float("inf"))
     with pytest.raises(InputError):
+        sloan(g, w2=-1.0)
+    with pytest.raises(InputError):
+        sloan(g, w1="two")
+    with pytest.raises(InputError):
         sloan(g, key=np.zeros(4))
     with pytest.raises(InputError):
         sloan(g, key=np.full(9, np.nan))

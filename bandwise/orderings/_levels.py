@@ -34,6 +34,8 @@ from numpy.typing import NDArray
 from ..errors import InputError
 from ..graph import NodeGraph
 
+__all__ = ["pseudo_diameter", "rooted_levels"]
+
 #: Width cap meaning "never abandon the search" in :func:`_sweep`.
 NO_CAP = np.iinfo(np.int64).max
 

@@ -33,6 +33,8 @@ from ..graph import NodeGraph
 from . import register
 from ._levels import NO_CAP, _george_liu, _nodes_by_degree, _shrunk_last_level, _sweep
 
+__all__ = ["cuthill_mckee", "reverse_cuthill_mckee"]
+
 #: Extra start nodes tried on a part of ``size`` nodes: ``min(16, 50_000 // size)``,
 #: so small parts get a wider search and a large mesh costs no more than the
 #: George-Liu search itself (the extra work is at most 50,000 node visits per part).

@@ -35,6 +35,8 @@ from ..graph import NodeGraph
 from . import register
 from ._levels import _nodes_by_degree, _pseudo_diameter, _sort_by_degree
 
+__all__ = ["gps"]
+
 
 @numba.njit(cache=True, nogil=True)
 def _levels_of(order, level_ptr, depth, level, reverse):  # pragma: no cover - compiled
@@ -263,9 +265,9 @@ def gps(graph: NodeGraph) -> NDArray[np.int64]:
 
     Notes
     -----
-    Steps II and III follow the paper (with the tie rules of Lewis 1982:
-    a component of the reduced graph whose two placements give the same
-    widest level goes to the narrower of the two structures).  Where this
+    Steps II and III follow the paper: a component of the reduced graph
+    whose two placements give the same widest level goes to the narrower of
+    the two structures (to ``v``'s when they are equally wide).  Where this
     implementation differs:
 
     - step I tries only one last-level node of each degree and abandons a

@@ -40,6 +40,8 @@ from ..graph import NodeGraph
 from . import register
 from ._levels import NO_CAP, _nodes_by_degree, _pseudo_diameter, _sweep
 
+__all__ = ["sloan"]
+
 # Node state in one int64 per node (``slot``), so that the inner loops touch a
 # single per-node word: -1 inactive, -2 postactive, and for a node in the heap
 # ``2 * position + 1`` if active, ``2 * position`` if preactive.  A node's
@@ -246,8 +248,9 @@ def sloan(graph: NodeGraph, w1: float = 2.0, w2: float = 1.0,
     Raises
     ------
     InputError
-        If a weight is not finite, or ``key`` is not one finite number per
-        node.
+        If a weight is negative or not finite (a negative ``w2`` would
+        lower priorities, which the heap does not allow for), or ``key`` is
+        not one finite number per node.
 
     Notes
     -----
@@ -267,8 +270,12 @@ def sloan(graph: NodeGraph, w1: float = 2.0, w2: float = 1.0,
     >>> sloan(g).tolist()
     [0, 2, 1, 3]
     """
-    if not (math.isfinite(w1) and math.isfinite(w2)):
-        raise InputError(f"Sloan weights must be finite numbers (got w1={w1}, w2={w2})")
+    try:
+        w1, w2 = float(w1), float(w2)
+    except (TypeError, ValueError):
+        raise InputError(f"Sloan weights must be numbers (got w1={w1!r}, w2={w2!r})") from None
+    if not (math.isfinite(w1) and math.isfinite(w2) and w1 >= 0 and w2 >= 0):
+        raise InputError(f"Sloan weights must be finite and non-negative (got w1={w1}, w2={w2})")
     if key is None:
         key_arr = np.zeros(0, dtype=np.float64)
         use_key = False
@@ -277,4 +284,4 @@ def sloan(graph: NodeGraph, w1: float = 2.0, w2: float = 1.0,
         if key_arr.shape != (graph.n,) or not np.all(np.isfinite(key_arr)):
             raise InputError(f"the Sloan key must be one finite number per node ({graph.n})")
         use_key = True
-    return _sloan_parts(graph.indptr, graph.indices, float(w1), float(w2), key_arr, use_key)
+    return _sloan_parts(graph.indptr, graph.indices, w1, w2, key_arr, use_key)
