@@ -351,10 +351,17 @@ def assemble_stiffness(model: Model, layout: DofLayout) -> StiffnessMatrix:
         if not use.any():
             continue
         data = block.data[use]
-        got = _block_matrices(block.type, data, pts, space, planar, masks)
+        try:
+            with np.errstate(all="ignore"):
+                got = _block_matrices(block.type, data, pts, space, planar, masks)
+        except np.linalg.LinAlgError:
+            got = f"degenerate {block.type} elements (zero length, area or volume)"
         if isinstance(got, str):
             return StiffnessMatrix(None, got)
         ke, names = got
+        if not np.isfinite(ke).all():
+            return StiffnessMatrix(None, f"degenerate {block.type} elements "
+                                         "(zero length, area or volume)")
         dofs = _element_dofs(masks, off, data, names)
         if dofs is None:
             return StiffnessMatrix(None, f"{block.type} elements need {' '.join(names)}, "

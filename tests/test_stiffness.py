@@ -294,3 +294,15 @@ def test_two_bar_line_pinned_at_one_end() -> None:
     k = assemble_stiffness(model, layout).matrix.toarray()[1:, 1:]
     assert np.allclose(k, [[2, -1], [-1, 1]])
     assert np.linalg.det(k) == pytest.approx(1.0)
+
+
+def test_degenerate_elements_are_reported_not_crashed() -> None:
+    from bandwise.model import CellBlock, Model
+
+    flat = Model(points=np.array([[0.0, 0, 0], [1, 0, 0], [2, 0, 0], [0, 1, 0], [0, 0, 1.0]]),
+                 cells=[CellBlock("tetra", np.array([[0, 1, 2, 3], [0, 1, 3, 4]]))])
+    built = assemble_stiffness(flat, dof_layout(flat))
+    assert built.matrix is None and "degenerate tetra" in built.reason
+    bar = line_frame(np.array([[0.0, 0], [0.0, 0], [1, 0]]), np.array([[0, 1], [1, 2]]))
+    built = assemble_stiffness(bar, dof_layout(bar, dofs_per_node=2))
+    assert built.matrix is None and "degenerate line" in built.reason
