@@ -11,9 +11,14 @@ whose nodes carry rotations are joined rigidly through the beam's bending, so
 a frame chain is one body.  A DOF shared by two bodies that both stiffen it is
 an equality constraint between them; a held DOF is a constraint to zero.
 The null space of that small system (SVD, rows scaled by body size so that
-the tolerance is relative) counts rigid and mechanism modes together; the
+the tolerance is relative; shift-invert Lanczos on the sparse Gram matrix for
+parts of very many bodies) counts rigid and mechanism modes together; the
 rigid part of each connected part is separated from its mechanisms and both
-are given in a tidy basis, described in words.
+are given in a tidy basis (reduced row-echelon form, rotations about and
+translations along the axes where possible), described in words with the
+nodes that move most.  Parts are numbered by their lowest node.  A small
+set of holds that removes every mode is suggested (greedy, node by node, or
+pivoted QR), never applied.
 
 The motions are evaluated only at held DOFs and at nodes shared by bodies,
 so the system is small even for a mesh of millions of nodes.
@@ -29,6 +34,11 @@ frames", Phil. Mag. 27 (1864) 294-299.
 C. R. Calladine, "Buckminster Fuller's 'Tensegrity' structures and Clerk
 Maxwell's rules for the construction of stiff frames", Int. J. Solids Struct.
 14 (1978) 161-172 (mechanisms - states of self-stress = 3j - b - 6).
+S. Pellegrino and C. R. Calladine, "Matrix analysis of statically and
+kinematically indeterminate frameworks", Int. J. Solids Struct. 22 (1986)
+409-428.
+P. Businger and G. H. Golub, "Linear least squares solutions by Householder
+transformations", Numer. Math. 7 (1965) 269-276 (column pivoting).
 """
 
 from __future__ import annotations
