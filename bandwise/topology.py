@@ -383,14 +383,14 @@ def _runs(sorted_keys, order, starts, enf, ecells, erow0, parent, n_cells):  # p
 
 @numba.njit(cache=True, nogil=True)
 def _radix_sort(keys, key_bits):  # pragma: no cover - compiled
-    """Sorted copy of non-negative ``keys`` below ``2**key_bits`` and the permutation.
+    """Sort non-negative ``keys`` below ``2**key_bits`` in place; return them and the permutation.
 
     Most-significant-digit radix sort, 8 bits a pass, insertion sort for
     small buckets: the first pass writes 256 streams and later passes work on
     pieces that fit in cache, which matters more than the operation count.
     """
     n = keys.size
-    src_k = keys.copy()
+    src_k = keys  # sorted in place
     src_i = np.arange(n)
     tmp_k = np.empty_like(src_k)
     tmp_i = np.empty_like(src_i)

@@ -139,3 +139,12 @@ def test_orphans_and_point_only_nodes():
     found = _codes(model)
     assert found["nodes.orphan"].node_ids == (110,)
     assert found["nodes.orphan"].node_id_kind == "original node id"
+
+
+def test_unanalysed_blocks_are_listed_not_dropped():
+    m = quad_grid(3, 3)
+    poly = np.empty(1, dtype=object)
+    poly[0] = np.array([0, 1, 4, 3, 0, 1])
+    model = Model(points=m.points, cells=[m.cells[0], CellBlock("polyhedron6", poly)])
+    found = _codes(model)
+    assert found["mesh.skipped_blocks"].where == ("polyhedron6 (1 cells)",)

@@ -1,6 +1,8 @@
 """Facets and face-connected blocks (bandwise.topology), checked by construction.
 
-Face tables follow the VTK cell node ordering (Kitware, "VTK File Formats");
+A slow, obvious reference implementation (facets in a dict, blocks by
+networkx connected components) checks the compiled facet table on random
+tetrahedra.  Face tables follow the VTK cell node ordering (Kitware, "VTK File Formats");
 that a face listed in that order has its normal pointing out of a
 positively oriented cell is the right-hand rule (common practice).
 """
@@ -9,6 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 from bandwise.generate import hex_grid, quad_grid, tet_grid, triangle_grid
 from bandwise.model import CellBlock, Model
@@ -146,3 +150,33 @@ def test_nodes_of_recovers_facets():
     nodes = t.nodes_of(np.arange(t.n_facets))
     expect, _ = facets("quad", m.cells[0].data)
     assert (nodes[:, :2] == expect).all() and (nodes[:, 2:] == -1).all()
+
+
+def _reference_blocks(cells: np.ndarray, shape: str) -> tuple[dict, list[set]]:
+    """Slow, obvious reference: facet multiplicities by dict, blocks by networkx."""
+    import networkx as nx
+
+    owners: dict[frozenset, list[int]] = {}
+    for c, row in enumerate(cells):
+        for face in local_facets(shape):
+            owners.setdefault(frozenset(row[list(face)].tolist()), []).append(c)
+    g = nx.Graph()
+    g.add_nodes_from(range(len(cells)))
+    for cs in owners.values():
+        g.add_edges_from((cs[0], other) for other in cs[1:])
+    return owners, [set(comp) for comp in nx.connected_components(g)]
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(1, 25), st.integers(5, 9))
+def test_facets_and_blocks_match_a_slow_reference(seed, n_cells, n_nodes):
+    rng = np.random.default_rng(seed)
+    cells = np.array([rng.choice(n_nodes, 4, replace=False) for _ in range(n_cells)])
+    model = Model(points=rng.random((n_nodes, 3)), cells=[CellBlock("tetra", cells)])
+    owners, comps = _reference_blocks(cells, "tetra")
+    t = facet_table(model)
+    assert sorted(t.multiplicity.tolist()) == sorted(len(v) for v in owners.values())
+    assert len(t.free) == sum(1 for v in owners.values() if len(v) == 1)
+    n, labels = face_connected_blocks(model, t)
+    assert n == len(comps)
+    assert {frozenset(np.flatnonzero(labels[0] == k).tolist()) for k in range(n)} == \
+        {frozenset(c) for c in comps}

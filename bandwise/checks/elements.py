@@ -65,12 +65,14 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
     """Repeated nodes, zero measure, inversion, distortion, duplicates, mixed dimension."""
     repeated, zero, inverted, distorted, clockwise = (_Hits.empty() for _ in range(5))
     planar = ctx.model.is_planar()
+    sorted_rows: dict[int, NDArray[np.int64]] = {}
     for bi, b in enumerate(ctx.model.cells):
         shape = corner_shape(b.type)
         if shape is None or b.data.dtype == object or b.data.ndim != 2 or not len(b.data):
             continue
         rows = np.arange(len(b.data), dtype=np.int64)
         s = np.sort(b.data, axis=1)
+        sorted_rows[bi] = s
         rep = (s[:, 1:] == s[:, :-1]).any(axis=1)
         repeated.add(bi, rep, rows)
         dim = ctx.dims[bi]
@@ -112,7 +114,7 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
     _emit(out, ctx, clockwise, "elements.clockwise", "warning",
           "plane elements run clockwise seen from +z (the reverse of the usual "
           "counter-clockwise order): negative area for solvers that expect it")
-    out += _duplicates(ctx)
+    out += _duplicates(ctx, sorted_rows)
     out += _mixed_dimension(ctx)
     return out
 
@@ -137,7 +139,8 @@ def _emit(out: list[Finding], ctx: CheckContext, hits: _Hits, code: str, severit
                            where=hits.where(ctx)))
 
 
-def _duplicates(ctx: CheckContext) -> list[Finding]:
+def _duplicates(ctx: CheckContext, sorted_rows: dict[int, NDArray[np.int64]],
+                ) -> list[Finding]:
     """Coupling elements with the same node set as an earlier one (over all blocks).
 
     Two cells with one node set have the same facets, hence the same
@@ -152,7 +155,7 @@ def _duplicates(ctx: CheckContext) -> list[Finding]:
     rows_sorted = np.full((len(key), width), -1, dtype=np.int64)
     at = 0
     for b, rows in zip(t.entry_block, t.entry_rows):
-        d = np.sort(ctx.model.cells[b].data[rows], axis=1)
+        d = sorted_rows[int(b)][rows]
         rows_sorted[at:at + len(rows), width - d.shape[1]:] = d
         at += len(rows)
     later = _later_copies(key, rows_sorted, len(t.multiplicity))
