@@ -369,6 +369,16 @@ def test_sloan_rejects_bad_options():
         sloan(g, key=np.full(9, np.nan))
 
 
+@pytest.mark.parametrize("module", ["_levels", "cuthill_mckee", "gps", "sloan"])
+def test_docstring_examples(module):
+    import doctest
+    import importlib
+
+    result = doctest.testmod(importlib.import_module(f"bandwise.orderings.{module}"))
+    assert result.attempted > 0
+    assert result.failed == 0
+
+
 def test_orderings_are_registered():
     assert {"cm", "rcm", "gps", "sloan"} <= set(ORDERINGS)
     assert ORDERINGS["rcm"].func is reverse_cuthill_mckee

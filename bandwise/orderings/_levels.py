@@ -298,6 +298,16 @@ def pseudo_diameter(graph: NodeGraph, nodes_of_part: NDArray[np.integer]) -> tup
     N. E. Gibbs, W. G. Poole and P. K. Stockmeyer, SIAM J. Numer. Anal. 13
     (1976) 236-250.  S. W. Sloan, Int. J. Numer. Meth. Eng. 28 (1989)
     2651-2679.
+
+    Examples
+    --------
+    The ends of a path 0-2-1-3:
+
+    >>> import numpy as np
+    >>> from bandwise.graph import graph_from_cells
+    >>> g = graph_from_cells([np.array([[0, 2], [2, 1], [1, 3]])], 4)
+    >>> pseudo_diameter(g, np.arange(4))
+    (0, 3)
     """
     nodes = np.asarray(nodes_of_part).ravel()
     if nodes.size == 0:
@@ -318,6 +328,14 @@ def rooted_levels(graph: NodeGraph, root: int) -> list[NDArray[np.int64]]:
 
     Returns a list of arrays, level ``l`` holding the nodes at distance ``l``
     from ``root`` (level 0 is ``[root]``), each in the order of discovery.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from bandwise.graph import graph_from_cells
+    >>> g = graph_from_cells([np.array([[0, 2], [2, 1], [1, 3]])], 4)
+    >>> [level.tolist() for level in rooted_levels(g, 2)]
+    [[2], [0, 1], [3]]
     """
     if not 0 <= root < graph.n:
         raise InputError(f"node {root} is not in the graph ({graph.n} nodes)")

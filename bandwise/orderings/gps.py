@@ -221,8 +221,32 @@ def _gps_part(indptr, indices, deg, low, seen, stamp, order, start, trees, tree_
 
 
 @numba.njit(cache=True, nogil=True)
+def _profiles_both_ways(indptr, indices, order, start, size, pos):  # pragma: no cover
+    """Profile of ``order[start:start+size]`` as numbered and reversed, in one pass.
+
+    Row ``v`` at position ``p`` has ``p - min(p, positions of its neighbours)``
+    forward, and ``max(p, positions of its neighbours) - p`` reversed.
+    """
+    for a in range(start, start + size):
+        pos[order[a]] = a
+    forward = 0
+    backward = 0
+    for a in range(start, start + size):
+        v = order[a]
+        lo = a
+        hi = a
+        for t in range(indptr[v], indptr[v + 1]):
+            q = pos[indices[t]]
+            lo = min(lo, q)
+            hi = max(hi, q)
+        forward += a - lo
+        backward += hi - a
+    return forward, backward
+
+
+@numba.njit(cache=True, nogil=True)
 def _gps_parts(indptr, indices):  # pragma: no cover - compiled
-    """GPS numbering of every part, reversed within each part."""
+    """GPS numbering of every part, each part in the direction of smaller profile."""
     n = indptr.size - 1
     deg = np.empty(n, dtype=np.int64)
     for v in range(n):
@@ -242,7 +266,9 @@ def _gps_parts(indptr, indices):  # pragma: no cover - compiled
             continue
         size, stamp = _gps_part(indptr, indices, deg, v, seen, stamp, order, placed, trees,
                                 tree_ptr, cand, lv, lu, comb)
-        order[placed:placed + size] = order[placed:placed + size][::-1].copy()
+        forward, backward = _profiles_both_ways(indptr, indices, order, placed, size, lv)
+        if backward <= forward:
+            order[placed:placed + size] = order[placed:placed + size][::-1].copy()
         placed += size
     return order
 
@@ -278,11 +304,10 @@ def gps(graph: NodeGraph) -> NDArray[np.int64]:
     - because of the short-circuiting, a trial structure that is deeper
       but no narrower than an earlier complete trial is abandoned instead
       of restarting the search (Lewis 1982 does the same);
-    - the numbering of each part is reversed at the end, as in reverse
-      Cuthill-McKee: the bandwidth is unchanged and the profile is usually
-      smaller (Liu and Sherman 1976 prove it never grows for Cuthill-McKee
-      orderings); Lewis's code chooses the direction from the tie-breaking
-      of an earlier program instead.
+    - each part's numbering is kept as numbered or reversed, whichever has
+      the smaller profile (reversed on a tie, as in reverse Cuthill-McKee;
+      the bandwidth is the same both ways); Lewis's code chooses the
+      direction from the tie-breaking of an earlier program instead.
 
     Cost: a few breadth-first searches per part, O(n + nnz) each, plus a
     sort of each level by degree and of each node's queued neighbours.
