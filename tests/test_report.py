@@ -532,3 +532,49 @@ def test_outer_faces_fallback_for_huge_node_numbers_agrees():
     packed = {tuple(sorted(f)) for f in outer_faces(model).tolist()}
     rows = {tuple(sorted(f)) for f in _outer_faces_by_rows(_face_tables(model)).tolist()}
     assert packed == rows and len(packed) == 2 * 2 * (4 * 3 + 3 * 3 + 4 * 3)
+
+
+def test_free_motion_of_a_block_pinned_at_one_node_is_a_rotation_about_it():
+    # rigid-body theory: a 3D body with all translations of one node held keeps the
+    # three rotations about that node; the null space of K is exactly those motions
+    # (K. J. Bathe, Finite Element Procedures, 1996, sec. 10.2.4)
+    from bandwise.report.modeshape import free_motion
+    from bandwise.supports import apply_supports, parse_support
+
+    model = hex_grid(4, 3, 3)
+    layout = dof_layout(model)
+    held = apply_supports(model, layout, [parse_support("near 0,0,0:ux,uy,uz")])
+    nodes, u = free_motion(model, layout, held, n_modes=3)
+    x = model.points[nodes]                       # node 0 sits at the origin
+    # u = w x x for one angular velocity w: a linear least-squares fit must be exact
+    cross = np.zeros((len(x), 3, 3))
+    cross[:, 0, 1], cross[:, 0, 2] = x[:, 2], -x[:, 1]
+    cross[:, 1, 0], cross[:, 1, 2] = -x[:, 2], x[:, 0]
+    cross[:, 2, 0], cross[:, 2, 1] = x[:, 1], -x[:, 0]
+    a = cross.reshape(-1, 3)
+    w = np.linalg.lstsq(a, u.ravel(), rcond=None)[0]
+    assert np.linalg.norm(w) > 0
+    assert np.abs(a @ w - u.ravel()).max() < 1e-8 * np.abs(u).max()
+    assert 0 not in nodes.tolist()                  # the held node does not move
+    free = apply_supports(model, layout, [parse_support("plane x=0:fixed")])
+    assert free_motion(model, layout, free, n_modes=0) is None
+
+
+def test_arrows_only_at_drawn_nodes_and_few(full_report):
+    from bandwise.report.build import MAX_ARROWS
+
+    _, _, doc = full_report
+    caption = next(f["caption"] for f in doc["figures"] if f["file"] == "mesh.png")
+    assert "Arrows: one free zero-energy motion" in caption
+    model = read_model_for_test("bracket.msh")
+    view = mesh_view(model, node_graph(model))
+    nodes = np.arange(model.n_nodes)
+    arrows = report_build.visible_arrows(view, (nodes, np.ones((model.n_nodes, 3))))
+    drawn = set(view.facets.ravel().tolist())
+    assert len(arrows[0]) == MAX_ARROWS and set(arrows[0].tolist()) <= drawn
+
+
+def read_model_for_test(name: str):
+    from bandwise.meshio_io import read_model
+
+    return read_model(ROOT / "meshes" / name)

@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
+from ..dofs import DofLayout
 from ..errors import MeshWriteError
 from ..metrics import column_heights, wavefront_profile
 from ..model import Model
@@ -27,10 +28,13 @@ from . import figures as fg
 from .document import body_mode_count, report_document
 from .html import json_text, render_html
 from .inputs import ReportInputs
-from .meshview import mesh_view
+from .meshview import MeshView, mesh_view, spread
+from .modeshape import free_motion
 from .sampling import pattern_image
 
 HTML_NAME, JSON_NAME = "report.html", "report.json"
+#: Most arrows drawn for a free motion.
+MAX_ARROWS = 120
 
 
 @dataclass(frozen=True)
@@ -119,20 +123,47 @@ def mode_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
         return {}
     labels = [label for m in modes.modes() for label in m.moving_nodes]
     nodes = node_indices(inputs.model, labels)
-    return {"free mode": np.unique(nodes)} if nodes.size else {}
+    return {"moving most in a free mode": np.unique(nodes)} if nodes.size else {}
+
+
+def mode_arrows(inputs: ReportInputs) -> tuple[NDArray[np.int64], NDArray[np.float64]] | None:
+    """One free motion as arrows, when the given supports leave modes and the model is small."""
+    free = body_mode_count(inputs)
+    if not free or inputs.model is None or inputs.supports is None \
+            or not isinstance(inputs.layout, DofLayout):
+        return None
+    return free_motion(inputs.model, inputs.layout, inputs.supports, free)
+
+
+def visible_arrows(view: MeshView, arrows: tuple[NDArray[np.int64], NDArray[np.float64]] | None,
+                   most: int = MAX_ARROWS) -> tuple[NDArray[np.int64], NDArray[np.float64]] | None:
+    """The arrows at nodes of drawn facets or members, at most ``most``, evenly spread."""
+    if arrows is None:
+        return None
+    nodes, vectors = arrows
+    drawn = np.zeros(view.xy.shape[0], dtype=bool)
+    drawn[view.facets.ravel()] = True
+    drawn[view.lines.ravel()] = True
+    keep = np.flatnonzero(drawn[nodes])
+    keep = keep[spread(keep.size, most)]
+    return (nodes[keep], vectors[keep]) if keep.size else None
 
 
 def mesh_figure(inputs: ReportInputs) -> Figure:
-    """The mesh coloured by part, the nodes of findings and free modes marked."""
+    """The mesh coloured by part, the nodes of findings and free modes marked, a free motion."""
     assert inputs.model is not None
     view = mesh_view(inputs.model, inputs.graph)
-    ax = fg.mesh_axes(view, {**finding_marks(inputs), **mode_marks(inputs)})
+    arrows = visible_arrows(view, mode_arrows(inputs))
+    ax = fg.mesh_axes(view, {**finding_marks(inputs), **mode_marks(inputs)}, arrows)
     shown = (f"{len(view.facets):,} of {view.facets_total:,} facets drawn (evenly spread "
              "subset)" if view.is_subsampled else "every facet drawn")
     caption = (f"The mesh, {view.n_parts} connected part(s) coloured; marked: the nodes "
                f"the findings name and those free modes move most; {shown}.")
     if view.axis_names[0].startswith("view"):
         caption += " Oblique view; outer faces of solids only."
+    if arrows is not None:
+        caption += (" Arrows: one free zero-energy motion (a vector of the null space of the "
+                    "supported unit stiffness; any combination of the listed modes can occur).")
     return Figure("mesh.png", "findings", caption, fg.png_bytes(ax))
 
 

@@ -97,7 +97,7 @@ def mesh_axes(view: MeshView, marks: Mapping[str, NDArray[np.integer]] | None = 
             continue
         marker, colour = MARKS.get(kind, MARKS["other"])
         shown = nodes if nodes.size <= 3000 else nodes[:: nodes.size // 3000 + 1]
-        handles.append(ax.scatter(*view.xy[shown].T, s=40, marker=marker, zorder=5,
+        handles.append(ax.scatter(*view.xy[shown].T, s=40, marker=marker, zorder=7,
                                   facecolors="none" if marker == "o" else colour,
                                   edgecolors=colour, linewidths=1.2,
                                   label=f"{kind} ({nodes.size:,})"))
@@ -111,7 +111,7 @@ def mesh_axes(view: MeshView, marks: Mapping[str, NDArray[np.integer]] | None = 
             uv = uv * (0.12 * size / longest)
             handles.append(ax.quiver(*view.xy[nodes].T, *uv.T, angles="xy",
                                      scale_units="xy", scale=1, color="#b0302a",
-                                     width=0.004, zorder=6, label="free mode"))
+                                     width=0.004, zorder=6, label="a free motion"))
     ax.autoscale_view()
     ax.set_aspect("equal", adjustable="datalim")
     ax.set_xlabel(f"{view.axis_names[0]} (model length unit)")

@@ -222,7 +222,7 @@ def projection(points: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArra
     return np.column_stack([right, up]), ("view right", "view up"), toward
 
 
-def _spread(m: int, keep: int) -> NDArray[np.int64]:
+def spread(m: int, keep: int) -> NDArray[np.int64]:
     """``keep`` of ``m`` indices, evenly spread and seeded (the same every run)."""
     if m <= keep:
         return np.arange(m, dtype=np.int64)
@@ -254,8 +254,8 @@ def mesh_view(model: Model, graph: NodeGraph, max_facets: int = 60000,
     cells2d, lines = surface_cells(model)
     facets = np.concatenate([outer_faces(model), cells2d])
     total_f, total_l = len(facets), len(lines)
-    facets = facets[_spread(total_f, max_facets)]
-    lines = lines[_spread(total_l, max_lines)]
+    facets = facets[spread(total_f, max_facets)]
+    lines = lines[spread(total_l, max_lines)]
     if toward is None or len(facets) == 0:
         shade = np.ones(len(facets))
     else:

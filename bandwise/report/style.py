@@ -22,7 +22,7 @@ MARKS = {
     "orphan": ("X", "#b0302a"),
     "coincident": ("o", "#111111"),
     "weak joint": ("D", "#e07b00"),
-    "free mode": ("^", "#6a1b9a"),
+    "moving most in a free mode": ("^", "#6a1b9a"),
     "other": ("s", "#555555"),  # hanging and other named nodes
 }
 #: Hatching of the bar series in the comparison chart.
