@@ -193,9 +193,6 @@ class FacetTable:
         blocks), ``-1`` for cells with no stiffness.
     n_blocks
         Number of face-connected blocks.
-    cell_first_facet
-        For every cell of the model, the smallest sorted position among its
-        facets' node sets (cells with one node set share it); ``-1`` if none.
     """
 
     model: Model = field(repr=False)
@@ -207,7 +204,6 @@ class FacetTable:
     multiplicity: NDArray[np.int64]
     cell_labels: NDArray[np.int64]
     n_blocks: int
-    cell_first_facet: NDArray[np.int64] = field(repr=False)
 
     @property
     def n_facets(self) -> int:
@@ -302,15 +298,14 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
     parent = np.arange(n_cells, dtype=np.int64)
     if not exact:
         sorted_keys, order = _checked_runs(model, entries, keys, order)
-    mult, free, first_facet = _runs(sorted_keys, order, starts, enf, ecells, erow0,
-                                    parent, n_cells)
+    mult, free = _runs(sorted_keys, order, starts, enf, ecells, erow0, parent)
     coupled = np.zeros(int(offsets[-1]), dtype=np.bool_)
     for (bi, rows, _) in entries:
         coupled[offsets[bi] + rows] = True
     labels, n_blocks = _compact_roots(parent, coupled)
     return FacetTable(model, np.array([e[0] for e in entries], dtype=np.int64),
                       tuple(e[1] for e in entries), tuple(e[2] for e in entries), starts,
-                      np.sort(free), mult, labels, int(n_blocks), first_facet)
+                      np.sort(free), mult, labels, int(n_blocks))
 
 
 @numba.njit(cache=True, nogil=True)
@@ -343,16 +338,14 @@ def _facet_keys(data, rows, local, widths, width, bits, exact, out):  # pragma: 
 
 
 @numba.njit(cache=True, nogil=True)
-def _runs(sorted_keys, order, starts, enf, ecells, erow0, parent, n_cells):  # pragma: no cover
+def _runs(sorted_keys, order, starts, enf, ecells, erow0, parent):  # pragma: no cover
     """Walk the runs of equal sorted keys: sizes, free facets, cells joined per run.
 
-    Returns the size of each run (distinct facet), the facets alone in their
-    run, and for every cell the first run position among its facets.
+    Returns the size of each run (distinct facet) and the facets alone in their run.
     """
     n = order.size
     mult = np.zeros(n, dtype=np.int64)
     free = np.empty(n, dtype=np.int64)
-    first_facet = np.full(n_cells, -1, dtype=np.int64)
     n_free = 0
     g = -1
     first = 0
@@ -375,10 +368,8 @@ def _runs(sorted_keys, order, starts, enf, ecells, erow0, parent, n_cells):  # p
             first = cell
         else:
             _union(parent, first, cell)
-        if first_facet[cell] == -1:
-            first_facet[cell] = g
         mult[g] += 1
-    return mult[:g + 1].copy(), free[:n_free].copy(), first_facet
+    return mult[:g + 1].copy(), free[:n_free].copy()
 
 
 @numba.njit(cache=True, nogil=True)

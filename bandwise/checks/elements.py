@@ -23,7 +23,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..elements import CORNER_COUNT
-from ..topology import corner_shape
+from ..topology import corner_shape, group_node_sets
 from . import measures
 from .context import CheckContext
 from .findings import Finding
@@ -65,15 +65,13 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
     """Repeated nodes, zero measure, inversion, distortion, duplicates, mixed dimension."""
     repeated, zero, inverted, distorted, clockwise = (_Hits.empty() for _ in range(5))
     planar = ctx.model.is_planar()
-    sorted_rows: dict[int, NDArray[np.int64]] = {}
+    digests: dict[int, NDArray[np.int64]] = {}
     for bi, b in enumerate(ctx.model.cells):
         shape = corner_shape(b.type)
         if shape is None or b.data.dtype == object or b.data.ndim != 2 or not len(b.data):
             continue
         rows = np.arange(len(b.data), dtype=np.int64)
-        s = np.sort(b.data, axis=1)
-        sorted_rows[bi] = s
-        rep = (s[:, 1:] == s[:, :-1]).any(axis=1)
+        digests[bi], rep = _row_digests(np.ascontiguousarray(b.data, dtype=np.int64))
         repeated.add(bi, rep, rows)
         dim = ctx.dims[bi]
         if dim == 3:
@@ -114,7 +112,7 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
     _emit(out, ctx, clockwise, "elements.clockwise", "warning",
           "plane elements run clockwise seen from +z (the reverse of the usual "
           "counter-clockwise order): negative area for solvers that expect it")
-    out += _duplicates(ctx, sorted_rows)
+    out += _duplicates(ctx, digests)
     out += _mixed_dimension(ctx)
     return out
 
@@ -139,56 +137,67 @@ def _emit(out: list[Finding], ctx: CheckContext, hits: _Hits, code: str, severit
                            where=hits.where(ctx)))
 
 
-def _duplicates(ctx: CheckContext, sorted_rows: dict[int, NDArray[np.int64]],
-                ) -> list[Finding]:
+@numba.njit(cache=True, nogil=True)
+def _row_digests(data):  # pragma: no cover - compiled
+    """For each cell: a hash of its node set (order-free) and whether a node repeats."""
+    m, k = data.shape
+    digest = np.empty(m, dtype=np.int64)
+    repeated = np.zeros(m, dtype=np.bool_)
+    buf = np.empty(k, dtype=np.int64)
+    for e in range(m):
+        for a in range(k):  # insertion sort of the row
+            v = data[e, a]
+            q = a
+            while q > 0 and buf[q - 1] > v:
+                buf[q] = buf[q - 1]
+                q -= 1
+            buf[q] = v
+        h = k * 0x2545F4914F6CDD1D
+        for a in range(k):
+            if a and buf[a] == buf[a - 1]:
+                repeated[e] = True
+            h = (h ^ buf[a]) * 0x3F58476D1CE4E5B9
+            h ^= (h >> 29) & 0x7FFFFFFFF
+        digest[e] = h
+    return digest, repeated
+
+
+def _duplicates(ctx: CheckContext, digests: dict[int, NDArray[np.int64]]) -> list[Finding]:
     """Coupling elements with the same node set as an earlier one (over all blocks).
 
-    Two cells with one node set have the same facets, hence the same
-    smallest facet group id: only cells sharing it are compared.
+    Cells are compared only when the hashes of their sorted node lists agree.
     """
-    t = ctx.table
+    blocks = [bi for bi in digests if ctx.coupling[bi].any()]
+    if not blocks:
+        return []
+    rows = [np.flatnonzero(ctx.coupling[bi]) for bi in blocks]
+    key = np.concatenate([digests[bi][r] for bi, r in zip(blocks, rows)])
+    blk = np.concatenate([np.full(r.size, bi, dtype=np.int64) for bi, r in zip(blocks, rows)])
+    row = np.concatenate(rows)
+    sk = np.sort(key)
+    repeated_keys = np.unique(sk[1:][sk[1:] == sk[:-1]])
     hits = _Hits.empty()
-    smallest = [t.cell_first_facet[ctx.offsets[b] + rows]
-                for b, rows in zip(t.entry_block, t.entry_rows)]
-    key = np.concatenate(smallest)
-    width = max(ctx.model.cells[b].data.shape[1] for b in t.entry_block)
-    rows_sorted = np.full((len(key), width), -1, dtype=np.int64)
-    at = 0
-    for b, rows in zip(t.entry_block, t.entry_rows):
-        d = sorted_rows[int(b)][rows]
-        rows_sorted[at:at + len(rows), width - d.shape[1]:] = d
-        at += len(rows)
-    later = _later_copies(key, rows_sorted, len(t.multiplicity))
-    at = 0
-    for b, rows in zip(t.entry_block, t.entry_rows):
-        hits.add(int(b), later[at:at + len(rows)], rows)
-        at += len(rows)
+    if repeated_keys.size:
+        cand = np.flatnonzero(np.isin(key, repeated_keys))
+        width = max(ctx.model.cells[bi].data.shape[1] for bi in blocks)
+        nodes = np.full((cand.size, width + 1), -1, dtype=np.int64)
+        for i, c in enumerate(cand):  # few candidates: hash agreements only
+            d = ctx.model.cells[blk[c]].data[row[c]]
+            nodes[i, :d.size] = d
+            nodes[i, width] = d.size  # the node count is part of the set's identity
+        group, _ = group_node_sets(nodes)
+        seen: set[int] = set()
+        later = np.zeros(cand.size, dtype=bool)
+        for i, g in enumerate(group.tolist()):  # candidates are in file order
+            later[i] = g in seen
+            seen.add(g)
+        for bi in np.unique(blk[cand[later]]):
+            sel = cand[later][blk[cand[later]] == bi]
+            hits.add(int(bi), np.ones(sel.size, dtype=bool), row[sel])
     out: list[Finding] = []
     _emit(out, ctx, hits, "elements.duplicate", "error",
           "elements repeat the node set of another element: their stiffness counts twice")
     return out
-
-
-@numba.njit(cache=True, nogil=True)
-def _later_copies(key, rows, n_keys):  # pragma: no cover - compiled
-    """True for each row equal to an earlier row with the same key (chained per key)."""
-    head = np.full(n_keys, -1, dtype=np.int64)
-    nxt = np.full(key.size, -1, dtype=np.int64)
-    later = np.zeros(key.size, dtype=np.bool_)
-    for c in range(key.size):
-        g = key[c]
-        o = head[g]
-        while o != -1 and not later[c]:
-            same = True
-            for a in range(rows.shape[1]):
-                if rows[o, a] != rows[c, a]:
-                    same = False
-                    break
-            later[c] = same
-            o = nxt[o]
-        nxt[c] = head[g]
-        head[g] = c
-    return later
 
 
 def _mixed_dimension(ctx: CheckContext) -> list[Finding]:
