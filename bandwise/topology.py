@@ -295,10 +295,13 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
     ecells = np.concatenate([offsets[bi] + rows for bi, rows, _ in entries] or
                             [np.zeros(0, np.int64)])
     erow0 = np.cumsum([0] + [rows.size for _, rows, _ in entries]).astype(np.int64)
+    # a block whose every cell couples needs no lookup: cell = first cell + row
+    ebase = np.array([offsets[bi] if rows.size == len(model.cells[bi].data) else -1
+                      for bi, rows, _ in entries] or [0], dtype=np.int64)
     parent = np.arange(n_cells, dtype=np.int64)
     if not exact:
         sorted_keys, order = _checked_runs(model, entries, keys, order)
-    mult, free = _runs(sorted_keys, order, starts, enf, ecells, erow0, parent)
+    mult, free = _runs(sorted_keys, order, starts, enf, ecells, erow0, ebase, parent)
     coupled = np.zeros(int(offsets[-1]), dtype=np.bool_)
     for (bi, rows, _) in entries:
         coupled[offsets[bi] + rows] = True
@@ -338,7 +341,7 @@ def _facet_keys(data, rows, local, widths, width, bits, exact, out):  # pragma: 
 
 
 @numba.njit(cache=True, nogil=True)
-def _runs(sorted_keys, order, starts, enf, ecells, erow0, parent):  # pragma: no cover
+def _runs(sorted_keys, order, starts, enf, ecells, erow0, ebase, parent):  # pragma: no cover
     """Walk the runs of equal sorted keys: sizes, free facets, cells joined per run.
 
     Returns the size of each run (distinct facet) and the facets alone in their run.
@@ -363,7 +366,8 @@ def _runs(sorted_keys, order, starts, enf, ecells, erow0, parent):  # pragma: no
         e = 0
         while f >= starts[e + 1]:
             e += 1
-        cell = ecells[erow0[e] + (f - starts[e]) // enf[e]]
+        r = (f - starts[e]) // enf[e]
+        cell = ebase[e] + r if ebase[e] >= 0 else ecells[erow0[e] + r]
         if i == run_start:
             first = cell
         else:
@@ -377,34 +381,36 @@ def _radix_sort(keys, key_bits):  # pragma: no cover - compiled
     """Sort non-negative ``keys`` below ``2**key_bits`` in place; return them and the permutation.
 
     Most-significant-digit radix sort, 8 bits a pass, insertion sort for
-    small buckets: the first pass writes 256 streams and later passes work on
-    pieces that fit in cache, which matters more than the operation count.
+    small buckets, the data moving between two buffers (no copy back): the
+    first pass writes 256 streams and later passes work on pieces that fit
+    in cache, which matters more here than the operation count.
     """
     n = keys.size
-    src_k = keys  # sorted in place
-    src_i = np.arange(n)
-    tmp_k = np.empty_like(src_k)
-    tmp_i = np.empty_like(src_i)
-    stack_lo = np.empty(64 * 256, dtype=np.int64)
-    stack_hi = np.empty(64 * 256, dtype=np.int64)
-    stack_shift = np.empty(64 * 256, dtype=np.int64)
-    top = 0
-    stack_lo[0], stack_hi[0], stack_shift[0] = 0, n, max(key_bits - 8, 0)
+    a_k, a_i = keys, np.arange(n)  # the result ends in these
+    b_k, b_i = np.empty_like(a_k), np.empty_like(a_i)
+    size = 64 * 256
+    stack_lo = np.empty(size, dtype=np.int64)
+    stack_hi = np.empty(size, dtype=np.int64)
+    stack_shift = np.empty(size, dtype=np.int64)
+    stack_in_b = np.empty(size, dtype=np.bool_)
+    stack_lo[0], stack_hi[0], stack_shift[0], stack_in_b[0] = 0, n, max(key_bits - 8, 0), False
     top = 1
     count = np.empty(257, dtype=np.int64)
     while top > 0:
         top -= 1
-        lo, hi, shift = stack_lo[top], stack_hi[top], stack_shift[top]
-        if hi - lo <= 32:
-            for a in range(lo + 1, hi):
+        lo, hi, shift, in_b = stack_lo[top], stack_hi[top], stack_shift[top], stack_in_b[top]
+        src_k, src_i = (b_k, b_i) if in_b else (a_k, a_i)
+        dst_k, dst_i = (a_k, a_i) if in_b else (b_k, b_i)
+        if hi - lo <= 32:  # insertion sort, landing in the result buffer
+            for a in range(lo, hi):
                 k, i = src_k[a], src_i[a]
                 q = a
-                while q > lo and src_k[q - 1] > k:
-                    src_k[q] = src_k[q - 1]
-                    src_i[q] = src_i[q - 1]
+                while q > lo and a_k[q - 1] > k:
+                    a_k[q] = a_k[q - 1]
+                    a_i[q] = a_i[q - 1]
                     q -= 1
-                src_k[q] = k
-                src_i[q] = i
+                a_k[q] = k
+                a_i[q] = i
             continue
         count[:] = 0
         for j in range(lo, hi):
@@ -414,22 +420,23 @@ def _radix_sort(keys, key_bits):  # pragma: no cover - compiled
         for j in range(lo, hi):
             d = (src_k[j] >> shift) & 0xFF
             p = lo + count[d]
-            tmp_k[p] = src_k[j]
-            tmp_i[p] = src_i[j]
+            dst_k[p] = src_k[j]
+            dst_i[p] = src_i[j]
             count[d] += 1
-        src_k[lo:hi] = tmp_k[lo:hi]
-        src_i[lo:hi] = tmp_i[lo:hi]
-        if shift == 0:
-            continue
-        nxt = max(shift - 8, 0)
         prev = lo
         for d in range(256):  # count[d] is now the end of digit d
             end = lo + count[d]
-            if end - prev > 1:
-                stack_lo[top], stack_hi[top], stack_shift[top] = prev, end, nxt
+            if shift == 0 or end - prev <= 1:  # sorted: make sure it is in the result
+                if in_b is False:  # the data went to b
+                    for q in range(prev, end):
+                        a_k[q] = b_k[q]
+                        a_i[q] = b_i[q]
+            else:
+                stack_lo[top], stack_hi[top] = prev, end
+                stack_shift[top], stack_in_b[top] = max(shift - 8, 0), not in_b
                 top += 1
             prev = end
-    return src_k, src_i
+    return a_k, a_i
 
 
 @numba.njit(cache=True, nogil=True)
