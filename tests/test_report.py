@@ -524,16 +524,6 @@ def test_mesh_axes_draws_given_mode_arrows():
     assert np.allclose(uv / np.abs(uv).max(), (spin @ view.screen) / np.abs(spin @ view.screen).max())
 
 
-def test_outer_faces_fallback_for_huge_node_numbers_agrees():
-    """Row-wise grouping (used past 1.6 million nodes) finds the same faces as packed keys."""
-    from bandwise.report.meshview import _face_tables, _outer_faces_by_rows
-
-    model = scrambled(tet_grid(5, 4, 4), seed=2)
-    packed = {tuple(sorted(f)) for f in outer_faces(model).tolist()}
-    rows = {tuple(sorted(f)) for f in _outer_faces_by_rows(_face_tables(model)).tolist()}
-    assert packed == rows and len(packed) == 2 * 2 * (4 * 3 + 3 * 3 + 4 * 3)
-
-
 def test_free_motion_of_a_block_pinned_at_one_node_is_a_rotation_about_it():
     # rigid-body theory: a 3D body with all translations of one node held keeps the
     # three rotations about that node; the null space of K is exactly those motions

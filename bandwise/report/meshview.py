@@ -20,16 +20,7 @@ from scipy.sparse.csgraph import connected_components
 from ..elements import CORNER_COUNT, cell_dimension
 from ..graph import NodeGraph
 from ..model import Model
-
-#: Faces of the 3D cell families in VTK / meshio corner numbering
-#: (common practice: the VTK cell definitions).
-FACES: dict[str, tuple[tuple[int, ...], ...]] = {
-    "tetra": ((0, 1, 2), (0, 1, 3), (1, 2, 3), (0, 2, 3)),
-    "hexahedron": ((0, 1, 2, 3), (4, 5, 6, 7), (0, 1, 5, 4), (1, 2, 6, 5),
-                   (2, 3, 7, 6), (3, 0, 4, 7)),
-    "wedge": ((0, 1, 2), (3, 4, 5), (0, 1, 4, 3), (1, 2, 5, 4), (2, 0, 3, 5)),
-    "pyramid": ((0, 1, 2, 3), (0, 1, 4), (1, 2, 4), (2, 3, 4), (3, 0, 4)),
-}
+from ..topology import FacetTable, coupling_cells, facet_table
 
 #: Azimuth and elevation (degrees) of the oblique view of 3D meshes: seen from
 #: +x, -y, +z, so that x runs to the right and z up.
@@ -104,91 +95,31 @@ def _pad4(faces: NDArray[np.int64]) -> NDArray[np.int64]:
     return np.concatenate([faces, faces[:, -1:]], axis=1)
 
 
-def _three_smallest(corners: NDArray[np.int64]) -> NDArray[np.int64]:
-    """The three smallest node numbers of each face, ascending (no full sort for triangles)."""
-    if corners.shape[1] == 3:
-        a, b, c = corners.T
-        lo = np.minimum(np.minimum(a, b), c)
-        hi = np.maximum(np.maximum(a, b), c)
-        return np.stack([lo, a + b + c - lo - hi, hi], axis=1)
-    return np.sort(corners, axis=1)[:, :3]
+def outer_faces(model: Model, table: FacetTable | None = None) -> NDArray[np.int64]:
+    """Faces of the 3D cells owned by one cell only, as ``(m, 4)`` corners, outward.
 
-
-def _met_once(key: NDArray[np.int64]) -> NDArray[np.bool_]:
-    """True where a key occurs exactly once (one sort, one binary search)."""
-    ordered = np.sort(key)
-    single = np.ones(ordered.size, dtype=bool)
-    same = ordered[1:] == ordered[:-1]
-    single[1:] &= ~same
-    single[:-1] &= ~same
-    once = ordered[single]
-    if once.size == 0:
-        return np.zeros(key.size, dtype=bool)
-    at = np.minimum(np.searchsorted(once, key), once.size - 1)
-    return once[at] == key
-
-
-def _face_tables(model: Model) -> list[tuple[NDArray[np.integer], tuple[int, ...]]]:
-    """(cell connectivity, local face) of every face of every 3D cell block."""
-    out = []
-    for block in model.cells:
-        base = block.type.rstrip("0123456789") if block.type not in FACES else block.type
-        if base in FACES and len(block):
-            out.extend((block.data, face) for face in FACES[base])
-    return out
-
-
-def outer_faces(model: Model) -> NDArray[np.int64]:
-    """Faces of the 3D cells that belong to one cell only, as ``(m, 4)`` corners.
-
-    A face is identified by its three smallest node numbers (enough in a
-    conforming mesh); faces met once are on the outside (or on a crack).
-
-    Notes
-    -----
-    One sort of the F face keys and a binary search: O(F log F) time.  Only
-    the keys of all faces are held at once (8 bytes a face); the corners are
-    gathered for the outer faces alone.
+    The free facets of :func:`bandwise.topology.facet_table` (the same the
+    free-face check counts) that are faces, not edges; triangles repeat their
+    last corner.
     """
-    tables = _face_tables(model)
-    if not tables:
-        return np.zeros((0, 4), dtype=np.int64)
-    n = max(model.n_nodes, 1)
-    if float(n) ** 3 >= 2.0 ** 62:  # beyond 1.6 million nodes
-        return _outer_faces_by_rows(tables)
-    keys = []
-    for data, face in tables:
-        small = _three_smallest(data[:, list(face)].astype(np.int64))
-        keys.append((small[:, 0] * n + small[:, 1]) * n + small[:, 2])
-    sizes = [k.size for k in keys]
-    outer = _met_once(np.concatenate(keys))
-    del keys
-    faces, start = [], 0
-    for (data, face), size in zip(tables, sizes):
-        rows = np.flatnonzero(outer[start:start + size])
-        faces.append(_pad4(data[rows][:, list(face)].astype(np.int64)))
-        start += size
-    return np.concatenate(faces)
-
-
-def _outer_faces_by_rows(tables: list[tuple[NDArray[np.integer], tuple[int, ...]]]
-                         ) -> NDArray[np.int64]:
-    """:func:`outer_faces` for meshes whose packed face key would not fit 63 bits."""
-    corners = [data[:, list(face)].astype(np.int64) for data, face in tables]
-    small = np.concatenate([_three_smallest(c) for c in corners])
-    _, inverse, counts = np.unique(small, axis=0, return_inverse=True, return_counts=True)
-    return np.concatenate([_pad4(c) for c in corners])[counts[inverse.ravel()] == 1]
+    table = facet_table(model) if table is None else table
+    nodes = table.nodes_of(table.free)
+    faces = nodes[nodes[:, 2] >= 0]          # faces of solids; 2D cells have edge facets
+    triangle = faces[:, 3] < 0
+    faces[triangle, 3] = faces[triangle, 2]
+    return faces
 
 
 def surface_cells(model: Model) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """Corners of the 2D cells, ``(m, 4)``, and of the line cells, ``(k, 2)``."""
+    """Corners of the 2D cells, ``(m, 4)``, and of the line cells, ``(k, 2)``, that carry
+    stiffness (shells, plates, frames; not the tag cells on the faces of solids)."""
     faces, lines = [], []
-    for block in model.cells:
+    for block, use in zip(model.cells, coupling_cells(model)):
         dim = cell_dimension(block.type)
-        if len(block) == 0 or dim not in (1, 2):
+        if not use.any() or dim not in (1, 2):
             continue
         k = CORNER_COUNT.get(block.type, block.data.shape[1])
-        corners = block.data[:, :k].astype(np.int64)
+        corners = block.data[use][:, :k].astype(np.int64)
         if dim == 1:
             lines.append(corners[:, [0, -1]])
         elif k in (3, 4):
@@ -243,7 +174,7 @@ def mesh_view(model: Model, graph: NodeGraph, max_facets: int = 60000,
 
     Notes
     -----
-    The outer faces cost one sort of all 3D cell faces: O(F log F) for F faces.
+    The outer faces come from one compiled facet grouping (:mod:`bandwise.topology`).
     """
     part, n_parts = node_parts(graph)
     points = np.asarray(model.points, dtype=np.float64)
