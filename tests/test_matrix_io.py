@@ -278,3 +278,15 @@ def test_elemental_files_are_refused_in_one_line(tmp_path):
     path = _boeing_file(tmp_path / "t.rsa", "RSE", TINY_PTR, TINY_IND, TINY_VAL)
     with pytest.raises(MeshReadError, match="elemental"):
         read_matrix(path)
+
+
+def test_values_with_a_fortran_exponent_without_e(tmp_path):
+    # A Fortran E edit descriptor drops the letter E when the exponent needs
+    # three digits (e.g. 0.1500-100 for 0.15e-100): common practice of
+    # Fortran output, seen in fixed-format matrix files.
+    path = _boeing_file(tmp_path / "t.rsa", "RSA", [1, 2, 3], [1, 2], [1.0, 2.0])
+    lines = path.read_text().splitlines()
+    lines[-1] = "  0.1500-100  0.2500+101"
+    path.write_text("\n".join(lines) + "\n")
+    a = read_matrix(path)
+    assert a[0, 0] == 0.15e-100 and a[1, 1] == 0.25e101
