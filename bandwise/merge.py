@@ -25,24 +25,69 @@ from .errors import InputError
 from .graph import NodeGraph, node_graph
 from .model import CellBlock, Model
 
+#: Direction of the sweep in :func:`coincident_pairs`: a fixed unit vector
+#: with unequal components, so that grid-aligned nodes project apart.
+SWEEP_DIRECTION = np.array([0.5406, 0.6216, 0.5670]) / np.linalg.norm([0.5406, 0.6216, 0.5670])
+
 
 def coincident_pairs(points: NDArray[np.float64], tolerance: float) -> NDArray[np.int64]:
     """All pairs ``(i, j)``, ``i < j``, of points at distance at most ``tolerance``.
 
-    Uses a k-d tree (``scipy.spatial.cKDTree.query_pairs``), not all pairs:
-    O(n log n) for a mesh with few coincident nodes.
+    Points are sorted along a fixed oblique direction and swept: only points
+    whose projections lie within ``tolerance`` are compared, which for a
+    tolerance far below the element size is a handful per node.  When the
+    sweep would compare too many (a tolerance near the element size), a k-d
+    tree (``scipy.spatial.cKDTree.query_pairs``) is used instead.  Never all
+    pairs: O(n log n) either way for a mesh with few coincident nodes.
     """
     if not tolerance > 0:
         raise InputError(f"the tolerance must be a positive distance, got {tolerance}")
-    if len(points) < 2:
+    pts = np.ascontiguousarray(points, dtype=np.float64)
+    if len(pts) < 2:
         return np.zeros((0, 2), dtype=np.int64)
-    # an unbalanced tree without node shrinking builds twice as fast, and the
-    # query radius is tiny: the balance matters little here
-    tree = cKDTree(np.asarray(points, dtype=np.float64), balanced_tree=False,
-                   compact_nodes=False)
-    pairs = tree.query_pairs(float(tolerance), output_type="ndarray").astype(np.int64)
+    direction = SWEEP_DIRECTION[:pts.shape[1]] / np.linalg.norm(SWEEP_DIRECTION[:pts.shape[1]])
+    proj = pts @ direction
+    order = np.argsort(proj, kind="stable")
+    limit = 64 * len(pts)
+    n_pairs = _sweep(pts, proj[order], order, float(tolerance), limit,
+                     np.zeros((0, 2), dtype=np.int64))
+    if n_pairs < 0:  # too many candidates: let the tree prune
+        tree = cKDTree(pts, balanced_tree=False, compact_nodes=False)
+        pairs = tree.query_pairs(float(tolerance), output_type="ndarray").astype(np.int64)
+    else:
+        pairs = np.empty((n_pairs, 2), dtype=np.int64)
+        _sweep(pts, proj[order], order, float(tolerance), limit, pairs)
     pairs.sort(axis=1)
     return pairs[np.lexsort((pairs[:, 1], pairs[:, 0]))]
+
+
+@numba.njit(cache=True, nogil=True)
+def _sweep(points, sorted_proj, order, tol, limit, out):  # pragma: no cover - compiled
+    """Count (``out`` empty) or list the pairs within ``tol``; -1 past ``limit`` candidates."""
+    n = order.size
+    dim = points.shape[1]
+    tol2 = tol * tol
+    found = 0
+    candidates = 0
+    for a in range(n):
+        i = order[a]
+        b = a + 1
+        while b < n and sorted_proj[b] - sorted_proj[a] <= tol:
+            candidates += 1
+            if candidates > limit:
+                return -1
+            j = order[b]
+            d2 = 0.0
+            for c in range(dim):
+                x = points[i, c] - points[j, c]
+                d2 += x * x
+            if d2 <= tol2:
+                if out.shape[0]:
+                    out[found, 0] = i
+                    out[found, 1] = j
+                found += 1
+            b += 1
+    return found
 
 
 def shortest_edge(graph: NodeGraph, points: NDArray[np.float64]) -> float:
