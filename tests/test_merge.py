@@ -104,3 +104,10 @@ def test_cli_merge_refuses_to_overwrite_the_input(tmp_path, runner, cli_app):
     write_model(two_plates(), src)
     res = runner.invoke(cli_app, ["merge", str(src), str(src)])
     assert res.exit_code == 2 and "input" in res.stderr
+
+
+def test_pairs_with_a_large_tolerance_use_the_tree_and_agree():
+    # 1,500 points and a radius of 0.4: the sweep would compare too many pairs
+    pts = np.random.default_rng(7).random((1500, 3))
+    expect = np.argwhere(np.triu(squareform(pdist(pts)) <= 0.4, k=1))
+    assert coincident_pairs(pts, 0.4).tolist() == expect.tolist()
