@@ -256,6 +256,7 @@ def test_matrix_input_writes_the_permuted_matrix(runner, cli_app, orderings, tmp
     (["--objective", "speed"], "valid"),
     (["--sloan-weights", "2"], "--sloan-weights"),
     (["--sloan-weights", "-1,1"], "--sloan-weights"),
+    (["--sloan-weights", "2,1", "--method", "scipy-rcm"], "sloan among the methods"),
 ])
 def test_bad_options_give_one_line_and_exit_2(runner, cli_app, orderings, tmp_path, args, words):
     src = tmp_path / "plate.vtu"

@@ -234,6 +234,9 @@ def renumber(
     progress = StderrProgress()
     node_map = map_path or default_map_path(out)
     options = sloan_options(sloan_weights)
+    if options and method != "auto" and "sloan" not in [m.strip() for m in method.split(",")]:
+        raise InputError("--sloan-weights needs sloan among the methods (--method auto or "
+                         "a list naming sloan)")
     if objective not in OBJECTIVES:
         raise InputError(f"unknown objective {objective!r}; valid: {', '.join(OBJECTIVES)}")
     if not source.exists():
@@ -258,6 +261,7 @@ def renumber(
             "output_format": result["output_format"],
             "node_map": str(node_map),
             "level": result["level"],
+            "options": options,
             "comparison": comp.to_dict(),
             "element_order": None if front is None else front.to_dict(),
         })
