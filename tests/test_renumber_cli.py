@@ -150,7 +150,7 @@ def test_sloan_weights_reach_sloan(runner, cli_app, orderings, tmp_path):
     code, _, stderr = run(runner, cli_app, "renumber", src, tmp_path / "o.vtu",
                           "--method", "sloan", "--sloan-weights", "1,2")
     assert code == 0, stderr
-    assert CALLS == [{"w1": 1.0, "w2": 2.0}]
+    assert CALLS and all(c == {"w1": 1.0, "w2": 2.0} for c in CALLS)  # warm-up and run
 
 
 def _restored(back: Model, node_map) -> Model:
