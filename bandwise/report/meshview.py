@@ -47,7 +47,8 @@ class MeshView:
     n_parts
         Number of connected parts.
     facets_total, lines_total
-        How many facets and members the full drawing has (before subsampling).
+        How many facets and members the full drawing has (before subsampling;
+        the outer faces of solids turned away from the viewer are not counted).
     axis_names
         Names of the picture axes (``("x", "y")``, or the view for 3D).
     screen
@@ -153,6 +154,14 @@ def projection(points: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArra
     return np.column_stack([right, up]), ("view right", "view up"), toward
 
 
+def _facing(points: NDArray[np.float64], faces: NDArray[np.int64],
+            toward: NDArray[np.float64]) -> NDArray[np.bool_]:
+    """True for outward-ordered faces whose normal points to the viewer (back-face culling)."""
+    p = points[faces]
+    normal = np.cross(p[:, 1] - p[:, 0], p[:, 2] - p[:, 0])
+    return normal @ toward >= 0
+
+
 def spread(m: int, keep: int) -> NDArray[np.int64]:
     """``keep`` of ``m`` indices, evenly spread and seeded (the same every run)."""
     if m <= keep:
@@ -183,7 +192,10 @@ def mesh_view(model: Model, graph: NodeGraph, max_facets: int = 60000,
     screen, names, toward = projection(points)
     xy = points @ screen
     cells2d, lines = surface_cells(model)
-    facets = np.concatenate([outer_faces(model), cells2d])
+    outer = outer_faces(model)
+    if toward is not None and len(outer):
+        outer = outer[_facing(points, outer, toward)]    # the back of a solid is hidden
+    facets = np.concatenate([outer, cells2d])
     total_f, total_l = len(facets), len(lines)
     facets = facets[spread(total_f, max_facets)]
     lines = lines[spread(total_l, max_lines)]
