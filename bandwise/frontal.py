@@ -11,13 +11,14 @@ depends on the element order only, not on the node numbering.
 
 Element order used here: elements in ascending order of their lowest-numbered
 node under the (renumbered) node numbering, ties broken by their highest
-node, then by their place in the file.  This is the rule of Razzaque (1980)
-and of Sloan and Randolph (1983), who first renumber the nodes with a
-profile-reducing ordering and then sort the elements this way (the exact
-tie-break is ours).  Why it works: node v enters the front with the first
-element of lowest node ``f_v`` (the first column of row v of the matrix) and
-leaves once the elements of lowest node up to v are assembled, so the front
-tracks the nodal wavefront, and never exceeds its maximum.
+node, then by their place in the file.  Razzaque (1980) and Sloan and
+Randolph (1983) both derive the element order from a profile-reducing node
+numbering in this spirit (the rule as recalled from those papers, from
+memory; the tie-break is ours).  Why it works: node v enters the front with
+the first element of lowest node ``f_v`` (the first column of row v of the
+matrix) and leaves once the elements of lowest node up to v are assembled,
+so within one block of elements the front tracks the nodal wavefront and
+never exceeds its maximum.
 
 Only elements that carry stiffness enter the front: a lower-dimensional cell
 lying wholly on nodes of higher-dimensional cells (a boundary or tag cell,
