@@ -16,7 +16,9 @@ Two parts, each printing its figures beside the baseline as ratios:
 
 2. A scrambled tetrahedral box of about ``--nodes`` nodes (default one
    million): times of scipy's RCM, our RCM (pseudo-peripheral search
-   included), GPS and Sloan, best of ``--repeat`` runs each, and the
+   included), GPS and Sloan, best of ``--repeat`` rounds (each round runs
+   all four in turn, so that load changes on a shared machine hit all
+   alike), and the
    ratios against the targets (RCM <= 2.0 x scipy; GPS and Sloan <= 4.0 x
    our RCM).  numba compile time is excluded: every kernel is warmed up on
    a tiny mesh first.
@@ -146,15 +148,22 @@ def _verdict(text: str, ok: bool, target: str) -> None:
     print(f"  [{'PASS' if ok else 'FAIL'}] {text} ({target})")
 
 
-def best_time(func: Callable[[NodeGraph], np.ndarray], graph: NodeGraph,
-              repeat: int) -> tuple[float, np.ndarray]:
-    """Least wall-clock time over ``repeat`` runs, and the last result."""
-    times = []
+def interleaved_times(funcs: dict[str, Callable[[NodeGraph], np.ndarray]], graph: NodeGraph,
+                      repeat: int) -> dict[str, tuple[float, np.ndarray]]:
+    """Least wall-clock time of each function over ``repeat`` rounds, and its result.
+
+    Each round runs every function once, in turn, so that a change of load
+    on a shared machine affects all of them alike and the ratios hold.
+    """
+    best: dict[str, tuple[float, np.ndarray]] = {}
     for _ in range(repeat):
-        t0 = time.perf_counter()
-        out = func(graph)
-        times.append(time.perf_counter() - t0)
-    return min(times), out
+        for name, func in funcs.items():
+            t0 = time.perf_counter()
+            out = func(graph)
+            elapsed = time.perf_counter() - t0
+            if name not in best or elapsed < best[name][0]:
+                best[name] = (elapsed, out)
+    return best
 
 
 def mesh_timing(target_nodes: int, repeat: int) -> None:
@@ -166,19 +175,17 @@ def mesh_timing(target_nodes: int, repeat: int) -> None:
     warm = time.perf_counter() - t0
     k = nodes_for_tet_box(target_nodes)
     graph = node_graph(scrambled(tet_grid(k, k, k), seed=0))
-    print(f"\nScrambled tetrahedral box {k} x {k} x {k}: {graph}; best of {repeat} runs; "
+    print(f"\nScrambled tetrahedral box {k} x {k} x {k}: {graph}; best of {repeat} rounds; "
           f"numba compile/warm-up on a tiny mesh first ({warm:.1f} s, not counted)")
     matrix = graph.to_scipy()
     from scipy.sparse.csgraph import reverse_cuthill_mckee as rcm
 
-    t_scipy, p_scipy = best_time(lambda g: rcm(matrix, symmetric_mode=True).astype(np.int64),
-                                 graph, repeat)
-    t_rcm, p_rcm = best_time(reverse_cuthill_mckee, graph, repeat)
-    t_gps, p_gps = best_time(gps, graph, repeat)
-    t_sloan, p_sloan = best_time(sloan, graph, repeat)
+    runs = interleaved_times({
+        "scipy rcm": lambda g: rcm(matrix, symmetric_mode=True).astype(np.int64),
+        "rcm": reverse_cuthill_mckee, "gps": gps, "sloan": sloan}, graph, repeat)
+    t_scipy, t_rcm, t_gps, t_sloan = (runs[k][0] for k in ("scipy rcm", "rcm", "gps", "sloan"))
     print(f"{'ordering':>12} {'time s':>8} {'bandwidth':>10} {'profile':>14} {'max front':>10}")
-    for name, t, p in (("scipy rcm", t_scipy, p_scipy), ("rcm", t_rcm, p_rcm),
-                       ("gps", t_gps, p_gps), ("sloan", t_sloan, p_sloan)):
+    for name, (t, p) in runs.items():
         m = metrics(graph, p)
         print(f"{name:>12} {t:>8.3f} {m.bandwidth:>10} {m.profile:>14} {m.max_wavefront:>10}")
     _verdict(f"rcm / scipy rcm time {t_rcm / t_scipy:.2f}", t_rcm <= 2.0 * t_scipy,

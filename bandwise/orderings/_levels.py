@@ -41,19 +41,6 @@ NO_CAP = np.iinfo(np.int64).max
 
 
 @numba.njit(cache=True, nogil=True)
-def _sort_by_degree(order, lo, hi, deg):  # pragma: no cover - compiled
-    """Stable insertion sort of ``order[lo:hi]`` by increasing degree (short runs)."""
-    for a in range(lo + 1, hi):
-        v = order[a]
-        dv = deg[v]
-        b = a - 1
-        while b >= lo and deg[order[b]] > dv:
-            order[b + 1] = order[b]
-            b -= 1
-        order[b + 1] = v
-
-
-@numba.njit(cache=True, nogil=True)
 def _nodes_by_degree(deg):  # pragma: no cover - compiled
     """All nodes in increasing degree, ties in index order (a counting sort)."""
     n = deg.size

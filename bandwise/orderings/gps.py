@@ -33,7 +33,7 @@ from numpy.typing import NDArray
 
 from ..graph import NodeGraph
 from . import register
-from ._levels import _nodes_by_degree, _pseudo_diameter, _sort_by_degree
+from ._levels import _nodes_by_degree, _pseudo_diameter
 
 __all__ = ["gps"]
 
@@ -182,8 +182,17 @@ def _number_by_levels(indptr, indices, deg, root, forward, depth, comb, lptr, me
                         q2_back += 1
                     else:
                         raise ValueError("combined level structure with a jump of two levels")
-                _sort_by_degree(out, batch1, q1_back, deg)
-                _sort_by_degree(out, batch2, q2_back, deg)
+                # each batch by increasing degree (a stable insertion sort,
+                # written out: a compiled call per node costs more than the sort)
+                for lo, hi in ((batch1, q1_back), (batch2, q2_back)):
+                    for a in range(lo + 1, hi):
+                        u = out[a]
+                        du = deg[u]
+                        b = a - 1
+                        while b >= lo and deg[out[b]] > du:
+                            out[b + 1] = out[b]
+                            b -= 1
+                        out[b + 1] = u
             if left == 0:
                 break
             while comb[members[cursor]] < 0:
