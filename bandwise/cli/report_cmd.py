@@ -8,7 +8,7 @@ shows each result given and says plainly what was not analysed.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 
@@ -46,15 +46,19 @@ ReportOpt = Annotated[Path | None, typer.Option(
 
 
 def write_report_option(out_dir: Path | None, inputs: ReportInputs,
-                        progress: Progress | None = None) -> None:
+                        progress: Progress | None = None, source: Path | None = None,
+                        n_files: int = 1) -> None:
     """Write the report when ``--report DIR`` was given; say where on stderr.
 
-    stderr keeps stdout clean for ``--json``.  Errors propagate as
-    :class:`~bandwise.errors.BandwiseError` for :func:`~bandwise.cli.guarded`.
+    With ``source`` and several input files, each gets ``DIR/<file stem>``
+    (:func:`report_folder`).  stderr keeps stdout clean for ``--json``.
+    Errors propagate as :class:`~bandwise.errors.BandwiseError` for
+    :func:`~bandwise.cli.guarded`.
     """
     if out_dir is None:
         return
-    files = write_report(out_dir, inputs, progress)
+    folder = out_dir if source is None else report_folder(out_dir, source, n_files)
+    files = write_report(folder, inputs, progress)
     typer.echo(f"bandwise: report written: {files.html}", err=True)
 
 
@@ -89,6 +93,22 @@ def mesh_report_inputs(model: Model, layout: DofLayout, graph: NodeGraph,
     return ReportInputs(model=model, graph=graph, layout=layout, summary=summary,
                         findings=findings, comparison=comparison, supports=held,
                         modes=modes, equations=equations, fail_on=fail_on)
+
+
+def renumber_report_inputs(result: dict[str, Any]) -> ReportInputs:
+    """The report of a ``renumber`` run from what it computed (mesh or matrix).
+
+    ``result`` holds the comparison and either ``model``, ``layout`` and
+    ``graph`` (a mesh) or ``matrix`` and ``graph`` (a matrix file).  The
+    mesh checks are not part of ``renumber``: the report says so.
+    """
+    graph, comparison = result["graph"], result["comparison"]
+    if "matrix" in result:
+        return ReportInputs(model=None, graph=graph, layout=1,
+                            summary=summarise_matrix(result["matrix"]), comparison=comparison)
+    model, layout = result["model"], result["layout"]
+    return ReportInputs(model=model, graph=graph, layout=layout,
+                        summary=summarise(model, layout, graph), comparison=comparison)
 
 
 @app.command()
