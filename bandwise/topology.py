@@ -286,7 +286,8 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
         _facet_keys(data, rows, local, (local >= 0).sum(axis=1).astype(np.int64), width, bits,
                     exact, keys[start:start + rows.size * len(local)])
     if exact:
-        sorted_keys, order = _radix_sort(keys, width * bits)
+        index = np.arange(keys.size, dtype=np.int32 if keys.size < 2**31 else np.int64)
+        sorted_keys, order = _radix_sort(keys, index, width * bits)
     else:
         order = np.argsort(keys)
         sorted_keys = keys[order]
@@ -347,8 +348,8 @@ def _runs(sorted_keys, order, starts, enf, ecells, erow0, ebase, parent):  # pra
     Returns the size of each run (distinct facet) and the facets alone in their run.
     """
     n = order.size
-    mult = np.zeros(n, dtype=np.int64)
-    free = np.empty(n, dtype=np.int64)
+    mult = np.zeros(n, dtype=np.int32)
+    free = np.empty(n, dtype=order.dtype)
     n_free = 0
     g = -1
     first = 0
@@ -373,12 +374,12 @@ def _runs(sorted_keys, order, starts, enf, ecells, erow0, ebase, parent):  # pra
         else:
             _union(parent, first, cell)
         mult[g] += 1
-    return mult[:g + 1].copy(), free[:n_free].copy()
+    return mult[:g + 1].astype(np.int64), free[:n_free].astype(np.int64)
 
 
 @numba.njit(cache=True, nogil=True)
-def _radix_sort(keys, key_bits):  # pragma: no cover - compiled
-    """Sort non-negative ``keys`` below ``2**key_bits`` in place; return them and the permutation.
+def _radix_sort(keys, index, key_bits):  # pragma: no cover - compiled
+    """Sort non-negative ``keys`` below ``2**key_bits`` and ``index`` with them, in place.
 
     Most-significant-digit radix sort, 8 bits a pass, insertion sort for
     small buckets, the data moving between two buffers (no copy back): the
@@ -386,7 +387,7 @@ def _radix_sort(keys, key_bits):  # pragma: no cover - compiled
     in cache, which matters more here than the operation count.
     """
     n = keys.size
-    a_k, a_i = keys, np.arange(n)  # the result ends in these
+    a_k, a_i = keys, index  # the result ends in these
     b_k, b_i = np.empty_like(a_k), np.empty_like(a_i)
     size = 64 * 256
     stack_lo = np.empty(size, dtype=np.int64)
