@@ -202,9 +202,12 @@ def header_section(doc: Mapping[str, Any]) -> str:
         ["file", mesh.get("file", "")], ["format", mesh.get("format", "")],
         ["report created (UTC)", doc["created"]],
         ["bandwise version", doc["bandwise_version"]],
-        ["nodes", mesh["nodes"]], ["elements", mesh["n_elements"]],
-        ["DOFs", mesh["dofs"]["total"]],
     ]
+    if doc["subject"] == "matrix":
+        facts.append(["matrix rows (unknowns)", mesh["nodes"]])
+    else:
+        facts += [["nodes", mesh["nodes"]], ["elements", mesh["n_elements"]],
+                  ["DOFs", mesh["dofs"]["total"]]]
     return "\n".join([
         "<header>",
         f"<h1>Solver readiness: {esc(doc['file_name'] or doc['subject'])}</h1>",
