@@ -11,8 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.spatial import cKDTree
 
+from ..merge import coincident_pairs
 from .context import CheckContext
 from .findings import Finding
 
@@ -60,7 +60,7 @@ def _coincident_facets(ctx: CheckContext, rows: NDArray[np.int64]) -> NDArray[np
     pts = ctx.model.points[np.where(valid, nodes, 0)]
     k = valid.sum(axis=1)
     centroid = (pts * valid[..., None]).sum(axis=1) / k[:, None]
-    pairs = cKDTree(centroid).query_pairs(tol, output_type="ndarray").astype(np.int64)
+    pairs = coincident_pairs(centroid, tol)
     if pairs.size == 0:
         return np.zeros((0, 2), dtype=np.int64)
     a, b = pairs[:, 0], pairs[:, 1]

@@ -72,5 +72,5 @@ def _first_ids(f: Finding, k: int = 5) -> str:
         ids, kind = f.element_ids, "elements"
     else:
         return ""
-    more = ", ..." if len(ids) > k or f.count > len(ids) and len(ids) >= k else ""
+    more = ", ..." if len(ids) > k else ""
     return f"{kind} {', '.join(str(i) for i in ids[:k])}{more}"
