@@ -16,7 +16,7 @@ from numpy.typing import NDArray
 
 from .meshview import MeshView
 from .sampling import Envelope, PatternImage, envelope
-from .style import AFTER, BEFORE, DENSITY_CMAP, HATCHES, MARKS, PARTS, SERIES, styled
+from .style import CURVE_AFTER, CURVE_BEFORE, DENSITY_CMAP, HATCHES, MARKS, PARTS, SERIES, styled
 
 
 def new_axes(width: float = 7.0, height: float = 4.5) -> Any:
@@ -150,25 +150,26 @@ def pattern_axes(image: PatternImage, title: str, ax: Any = None,
     return ax
 
 
-def _step_fill(ax: Any, env: Envelope, colour: str, hatch: str, label: str,
-               alpha: float, lower: bool) -> None:
+def _step_fill(ax: Any, env: Envelope, look: Mapping[str, Any], label: str,
+               lower: bool) -> None:
+    """Fill a reduced curve as a step band (from 0, or from its lower envelope)."""
+    if env.length == 0:
+        return
     x = np.append(env.start, env.length)
     lo = np.append(env.lower, env.lower[-1]) if lower else np.zeros(x.size)
     hi = np.append(env.upper, env.upper[-1])
-    ax.fill_between(x, lo, hi, step="post", facecolor=colour, edgecolor=AFTER
-                    if colour == BEFORE else colour, hatch=hatch, linewidth=0.0,
-                    alpha=alpha, label=label)
-    ax.step(x, hi, where="post", color=colour if colour != BEFORE else "#6d819c",
-            linewidth=0.9)
+    ax.fill_between(x, lo, hi, step="post", facecolor=look["face"], edgecolor=look["hatch_ink"],
+                    hatch=look["hatch"], linewidth=0.0, alpha=look["alpha"], label=label)
+    ax.step(x, hi, where="post", color=look["line"], linewidth=0.9)
 
 
 def _curve_axes(before: NDArray[np.integer], after: NDArray[np.integer] | None,
                 labels: Sequence[str], ylabel: str, title: str, lower: bool,
                 ax: Any) -> Any:
     ax = ax if ax is not None else new_axes(7.0, 3.6)
-    _step_fill(ax, envelope(before), BEFORE, "///", labels[0], 1.0, lower)
+    _step_fill(ax, envelope(before), CURVE_BEFORE, labels[0], lower)
     if after is not None:
-        _step_fill(ax, envelope(after), AFTER, "", labels[1], 0.85, lower)
+        _step_fill(ax, envelope(after), CURVE_AFTER, labels[1], lower)
     ax.set_xlim(0, max(len(before), 1))
     ax.set_ylim(bottom=0)
     ax.set_xlabel("equation (DOF row, elimination order)")

@@ -14,6 +14,10 @@ from typing import Any, TypeVar
 #: Current numbering (light) and renumbered (dark): lightness apart by ~45 %.
 BEFORE = "#a9b8cc"
 AFTER = "#23455a"
+#: The two curves of the skyline and wavefront plots: light and hatched, dark and solid.
+CURVE_BEFORE = {"face": BEFORE, "hatch": "///", "hatch_ink": AFTER, "line": "#6d819c",
+                "alpha": 1.0}
+CURVE_AFTER = {"face": AFTER, "hatch": "", "hatch_ink": AFTER, "line": AFTER, "alpha": 0.85}
 #: Colours of connected parts, alternating dark and light.
 PARTS = ("#8fb0c4", "#e0b15c", "#2f5a70", "#f1e3c6", "#6b3a5b", "#b9d3c0",
          "#9c5b2e", "#4f7d5c")
