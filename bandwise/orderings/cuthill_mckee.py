@@ -103,6 +103,11 @@ def _cuthill_mckee_parts(indptr, indices, reverse):  # pragma: no cover - compil
     for v in _nodes_by_degree(deg):
         if seen[v] != 0:
             continue
+        if deg[v] == 0:  # an isolated node is a part of its own
+            seen[v] = 1
+            order[placed] = v
+            placed += 1
+            continue
         size, stamp = _cuthill_mckee_part(indptr, indices, deg, v, seen, stamp, order, placed,
                                           level_ptr, cand)
         if reverse:

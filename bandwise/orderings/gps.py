@@ -136,8 +136,9 @@ def _level_lists(nodes, comb, depth, deg):  # pragma: no cover - compiled
     for lvl in range(depth):
         lo = ptr[lvl]
         hi = ptr[lvl + 1]
-        ranks = np.argsort(deg[members[lo:hi]], kind="mergesort")
-        members[lo:hi] = members[lo:hi][ranks]
+        if hi - lo > 1:
+            ranks = np.argsort(deg[members[lo:hi]], kind="mergesort")
+            members[lo:hi] = members[lo:hi][ranks]
     return ptr, members
 
 
@@ -272,6 +273,11 @@ def _gps_parts(indptr, indices):  # pragma: no cover - compiled
     stamp = 0
     for v in _nodes_by_degree(deg):
         if seen[v] != 0:
+            continue
+        if deg[v] == 0:  # an isolated node is a part of its own
+            seen[v] = 1
+            order[placed] = v
+            placed += 1
             continue
         size, stamp = _gps_part(indptr, indices, deg, v, seen, stamp, order, placed, trees,
                                 tree_ptr, cand, lv, lu, comb)

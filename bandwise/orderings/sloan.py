@@ -214,6 +214,11 @@ def _sloan_parts(indptr, indices, w1, w2, key, use_key):  # pragma: no cover - c
     for v in _nodes_by_degree(deg):
         if seen[v] != 0:
             continue
+        if deg[v] == 0:  # an isolated node is a part of its own
+            seen[v] = 1
+            order[placed] = v
+            placed += 1
+            continue
         size, stamp = _sloan_part(indptr, indices, deg, v, w1, w2, key, use_key, seen, stamp,
                                   order, placed, trees, tree_ptr, cand, base, slot, heap, hkey)
         placed += size
