@@ -136,3 +136,14 @@ def test_beam_inside_a_plate_has_another_dimension_but_tag_edges_do_not():
                                      CellBlock("line", edge)])
     f = _codes(model)["elements.mixed_dimension"]
     assert f.count == 1 and f.element_ids == (5,)
+
+
+def test_a_block_inverted_throughout_points_at_the_node_order_convention():
+    m = tet_grid(3, 3, 3)
+    data = m.cells[0].data[:, [0, 2, 1, 3]]  # every tetrahedron mirrored
+    f = _codes(Model(points=m.points, cells=[CellBlock("tetra", data)]))["elements.inverted"]
+    assert f.count == len(data) and "node-order convention" in f.message
+    one = m.cells[0].data.copy()
+    one[0] = one[0, [0, 2, 1, 3]]
+    f = _codes(Model(points=m.points, cells=[CellBlock("tetra", one)]))["elements.inverted"]
+    assert "node-order convention" not in f.message

@@ -103,9 +103,13 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
     _emit(out, ctx, zero, "elements.zero_measure", "error",
           "elements have zero length, area or volume on their corner nodes: "
           "a singular element stiffness")
+    whole = _whole_blocks(ctx, inverted)
     _emit(out, ctx, inverted, "elements.inverted", "error",
           "solid elements have negative volume (node order reversed, right-hand rule): "
-          "negative Jacobian, the solver stops or gives wrong answers")
+          "negative Jacobian, the solver stops or gives wrong answers"
+          + (f"; every element of {' and '.join(whole)} is inverted: the file probably "
+             "uses another node-order convention than VTK's (a reader or export "
+             "setting) rather than a meshing fault" if whole else ""))
     _emit(out, ctx, distorted, "elements.distorted", "error",
           "elements have a negative Jacobian at a corner (concave, twisted or folded): "
           "the element stiffness is unreliable")
@@ -115,6 +119,16 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
     out += _duplicates(ctx, digests)
     out += _mixed_dimension(ctx)
     return out
+
+
+def _whole_blocks(ctx: CheckContext, hits: _Hits) -> list[str]:
+    """Names of the blocks in which every coupling cell is among ``hits``."""
+    names = []
+    for b, r in zip(hits.blocks, hits.rows):
+        bi = int(b[0])
+        if r.size == int(ctx.coupling[bi].sum()):
+            names.append(ctx.block_name(bi))
+    return names
 
 
 def _measure(shape: str, p: NDArray[np.float64], planar: bool,
