@@ -113,9 +113,12 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
     _emit(out, ctx, distorted, "elements.distorted", "error",
           "elements have a negative Jacobian at a corner (concave, twisted or folded): "
           "the element stiffness is unreliable")
+    whole = _whole_blocks(ctx, clockwise)
     _emit(out, ctx, clockwise, "elements.clockwise", "warning",
           "plane elements run clockwise seen from +z (the reverse of the usual "
-          "counter-clockwise order): negative area for solvers that expect it")
+          "counter-clockwise order): negative area for solvers that expect it"
+          + (f"; all of {' and '.join(whole)} run so: the mesh was probably drawn with "
+             "its normal along -z" if whole else ""))
     out += _duplicates(ctx, digests)
     out += _mixed_dimension(ctx)
     return out
