@@ -360,15 +360,16 @@ def test_existing_report_folder_is_replaced_whole(tmp_path, monkeypatch):
 # --------------------------------------------------------------------------- command line
 
 
-def test_cli_report_of_the_demo_bracket(runner, cli_app, tmp_path):
-    out = tmp_path / "bracket-report"
-    mesh = ROOT / "meshes" / "bracket.msh"
+def test_cli_report_of_the_demo_frame(runner, cli_app, tmp_path):
+    out = tmp_path / "frame-report"
+    mesh = ROOT / "meshes" / "frame.inp"
     before = mesh.read_bytes()
     result = runner.invoke(cli_app, ["report", str(mesh), "--out", str(out), "--method", "none"])
     assert result.exit_code == 0, result.stderr
     assert (out / "report.html").is_file() and (out / "report.json").is_file()
     doc = json.loads((out / "report.json").read_text())
-    assert doc["mesh"]["nodes"] == 1305
+    assert doc["mesh"]["nodes"] == 96 and doc["mesh"]["elements"] == {"line": 104}
+    assert doc["mesh"]["dofs"]["total"] == 6 * 96                 # a space frame
     assert doc["comparison"] is None and "Orderings were not compared." in doc["not_analysed"]
     assert doc["findings"] is not None                            # the checks ran
     assert "report.html" in result.stdout and CAUTION in result.stdout
