@@ -377,26 +377,31 @@ def _runs(sorted_keys, order, starts, enf, ecells, erow0, ebase, parent):  # pra
     return mult[:g + 1].astype(np.int64), free[:n_free].astype(np.int64)
 
 
+#: Radix digit of :func:`_radix_sort`: 11 bits, so 2048 buckets (their counts fit in L1).
+_DIGIT = 11
+_BUCKETS = 1 << _DIGIT
+
+
 @numba.njit(cache=True, nogil=True)
 def _radix_sort(keys, index, key_bits):  # pragma: no cover - compiled
     """Sort non-negative ``keys`` below ``2**key_bits`` and ``index`` with them, in place.
 
-    Most-significant-digit radix sort, 8 bits a pass, insertion sort for
+    Most-significant-digit radix sort, 11 bits a pass, insertion sort for
     small buckets, the data moving between two buffers (no copy back): the
-    first pass writes 256 streams and later passes work on pieces that fit
+    first pass writes 2048 streams and later passes work on pieces that fit
     in cache, which matters more here than the operation count.
     """
     n = keys.size
     a_k, a_i = keys, index  # the result ends in these
     b_k, b_i = np.empty_like(a_k), np.empty_like(a_i)
-    size = 64 * 256
+    size = 8 * _BUCKETS
     stack_lo = np.empty(size, dtype=np.int64)
     stack_hi = np.empty(size, dtype=np.int64)
     stack_shift = np.empty(size, dtype=np.int64)
     stack_in_b = np.empty(size, dtype=np.bool_)
-    stack_lo[0], stack_hi[0], stack_shift[0], stack_in_b[0] = 0, n, max(key_bits - 8, 0), False
+    stack_lo[0], stack_hi[0], stack_shift[0], stack_in_b[0] = 0, n, max(key_bits - _DIGIT, 0), False
     top = 1
-    count = np.empty(257, dtype=np.int64)
+    count = np.empty(_BUCKETS + 1, dtype=np.int64)
     while top > 0:
         top -= 1
         lo, hi, shift, in_b = stack_lo[top], stack_hi[top], stack_shift[top], stack_in_b[top]
@@ -415,17 +420,17 @@ def _radix_sort(keys, index, key_bits):  # pragma: no cover - compiled
             continue
         count[:] = 0
         for j in range(lo, hi):
-            count[((src_k[j] >> shift) & 0xFF) + 1] += 1
-        for d in range(256):
+            count[((src_k[j] >> shift) & (_BUCKETS - 1)) + 1] += 1
+        for d in range(_BUCKETS):
             count[d + 1] += count[d]
         for j in range(lo, hi):
-            d = (src_k[j] >> shift) & 0xFF
+            d = (src_k[j] >> shift) & (_BUCKETS - 1)
             p = lo + count[d]
             dst_k[p] = src_k[j]
             dst_i[p] = src_i[j]
             count[d] += 1
         prev = lo
-        for d in range(256):  # count[d] is now the end of digit d
+        for d in range(_BUCKETS):  # count[d] is now the end of digit d
             end = lo + count[d]
             if shift == 0 or end - prev <= 1:  # sorted: make sure it is in the result
                 if in_b is False:  # the data went to b
@@ -434,7 +439,7 @@ def _radix_sort(keys, index, key_bits):  # pragma: no cover - compiled
                         a_i[q] = b_i[q]
             else:
                 stack_lo[top], stack_hi[top] = prev, end
-                stack_shift[top], stack_in_b[top] = max(shift - 8, 0), not in_b
+                stack_shift[top], stack_in_b[top] = max(shift - _DIGIT, 0), not in_b
                 top += 1
             prev = end
     return a_k, a_i
