@@ -572,3 +572,20 @@ def read_model_for_test(name: str):
     from bandwise.meshio_io import read_model
 
     return read_model(ROOT / "meshes" / name)
+
+
+def test_palettes_stay_apart_in_grey():
+    """Neighbouring part colours and the two curves differ in luminance (ITU-R BT.709 weights)."""
+    from matplotlib.colors import to_rgb
+
+    from bandwise.report.style import AFTER, BEFORE, PARTS
+
+    def grey(colour: str) -> float:
+        r, g, b = to_rgb(colour)
+        return 255 * (0.2126 * r + 0.7152 * g + 0.0722 * b)
+
+    from itertools import pairwise
+
+    steps = [abs(grey(a) - grey(b)) for a, b in pairwise(PARTS)]
+    assert min(steps) >= 60
+    assert abs(grey(BEFORE) - grey(AFTER)) >= 80

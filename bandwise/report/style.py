@@ -18,9 +18,10 @@ AFTER = "#23455a"
 CURVE_BEFORE = {"face": BEFORE, "hatch": "///", "hatch_ink": AFTER, "line": "#6d819c",
                 "alpha": 1.0}
 CURVE_AFTER = {"face": AFTER, "hatch": "", "hatch_ink": AFTER, "line": AFTER, "alpha": 0.85}
-#: Colours of connected parts, alternating dark and light.
-PARTS = ("#8fb0c4", "#e0b15c", "#2f5a70", "#f1e3c6", "#6b3a5b", "#b9d3c0",
-         "#9c5b2e", "#4f7d5c")
+#: Colours of connected parts; the grey level (luminance) of neighbours in the
+#: list differs by 60 or more of 255, so parts stay apart when printed in grey.
+PARTS = ("#8fb0c4", "#9c5b2e", "#f1e3c6", "#2f5a70", "#e0b15c", "#6b3a5b",
+         "#b9d3c0", "#4f7d5c")
 #: Markers and colours of the marked nodes (shape first, colour second).
 MARKS = {
     "orphan": ("X", "#b0302a"),
