@@ -589,3 +589,15 @@ def test_palettes_stay_apart_in_grey():
     steps = [abs(grey(a) - grey(b)) for a, b in pairwise(PARTS)]
     assert min(steps) >= 60
     assert abs(grey(BEFORE) - grey(AFTER)) >= 80
+
+
+def test_report_folder_one_per_input_when_several(tmp_path):
+    from bandwise.cli.report_cmd import report_folder
+
+    out = tmp_path / "reports"
+    assert report_folder(out, Path("a/bracket.msh"), 1) == out and not out.exists()
+    assert report_folder(out, Path("a/bracket.msh"), 2) == out / "bracket"
+    assert out.is_dir()                                   # made for the several reports
+    with pytest.raises(MeshWriteError, match="does not exist"):
+        report_folder(tmp_path / "no" / "reports", Path("x.msh"), 2)
+    assert not (tmp_path / "no").exists()
