@@ -613,8 +613,8 @@ def face_connected_blocks(model: Model, table: FacetTable | None = None,
 
     Notes
     -----
-    Computed with the facet table (one hashing pass and a union-find
-    forest over the cells), O(F) expected time for F facets.
+    Computed with the facet table (facet keys radix-sorted once, a
+    union-find forest over the cells), about linear in the facet count.
     """
     if table is None:
         table = facet_table(model)
