@@ -122,7 +122,7 @@ def _sweep(indptr, indices, deg, root, seen, stamp, order, start, level_ptr,
 @numba.njit(cache=True, nogil=True)
 def _george_liu(indptr, indices, deg, root, seen, stamp, order, start, level_ptr,
                 by_degree):  # pragma: no cover - compiled
-    """George-Liu pseudo-peripheral node search (SPARSPAK's FNROOT).
+    """George-Liu pseudo-peripheral node search (George and Liu 1979).
 
     Level structure from ``root``; take a node of minimum degree in the last
     level and build its structure; repeat while the depth grows.  On return

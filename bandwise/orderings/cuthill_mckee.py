@@ -37,7 +37,8 @@ __all__ = ["cuthill_mckee", "reverse_cuthill_mckee"]
 
 #: Extra start nodes tried on a part of ``size`` nodes: ``min(16, 50_000 // size)``,
 #: so small parts get a wider search and a large mesh costs no more than the
-#: George-Liu search itself (the extra work is at most 50,000 node visits per part).
+#: George-Liu search itself (the extra work is at most 50,000 node visits, with
+#: their edges, per part).
 EXTRA_STARTS = 16
 EXTRA_BUDGET = 50_000
 

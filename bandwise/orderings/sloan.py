@@ -63,7 +63,7 @@ def _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, out,
     neighbours' current degrees drop by one (+W2) and inactive ones become
     preactive; number it; each preactive neighbour becomes active (+W2) and
     its own neighbours' priorities rise too (+W2), inactive ones becoming
-    preactive (Sloan 1986, steps 6-9).  "Rise" below means: a node in the
+    preactive (the numbering steps of Sloan 1986).  "Rise" below means: a node in the
     heap gains W2 and sifts up; an inactive node enters the heap with its
     initial priority + W2.
     """
