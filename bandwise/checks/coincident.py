@@ -14,7 +14,7 @@ from scipy.sparse.csgraph import connected_components
 
 from ..merge import coincident_pairs
 from .context import CheckContext
-from .findings import Finding
+from .findings import Finding, counted
 
 
 def check_coincident(ctx: CheckContext) -> list[Finding]:
@@ -32,7 +32,8 @@ def check_coincident(ctx: CheckContext) -> list[Finding]:
         s = pairs[seam]
         out.append(Finding(
             "nodes.coincident_seam", "error", int(seam.sum()),
-            f"{int(seam.sum())} pairs of coincident nodes join different parts ({rule}): "
+            f"{counted(int(seam.sum()), 'pair', 'pairs')} of coincident nodes join different "
+            f"parts ({rule}): "
             f"an unmerged seam; merged, the {n_parts} parts would become {after}",
             node_ids=ctx.node_ids(s.ravel()), node_id_kind=ctx.node_id_kind,
             where=tuple(f"part {p + 1}" for p in np.unique(np.r_[pa[seam], pb[seam]])[:50]),
@@ -43,7 +44,8 @@ def check_coincident(ctx: CheckContext) -> list[Finding]:
         s = pairs[inside]
         out.append(Finding(
             "nodes.coincident", "warning", int(inside.sum()),
-            f"{int(inside.sum())} pairs of coincident nodes within one part or on orphan "
+            f"{counted(int(inside.sum()), 'pair', 'pairs')} of coincident nodes within one "
+            "part or on orphan "
             f"nodes ({rule}): a crack or a doubled node where the mesh should be continuous",
             node_ids=ctx.node_ids(s.ravel()), node_id_kind=ctx.node_id_kind,
             details=({"tolerance": tol},)))

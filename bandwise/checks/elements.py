@@ -26,7 +26,7 @@ from ..elements import CORNER_COUNT
 from ..topology import corner_shape, group_node_sets
 from . import measures
 from .context import CheckContext
-from .findings import Finding
+from .findings import Finding, counted
 
 #: A measure below this fraction of (cell size)^dimension counts as zero.
 ZERO_MEASURE = 1e-10
@@ -99,23 +99,23 @@ def check_elements(ctx: CheckContext) -> list[Finding]:
             distorted.add(bi, ok & (measure > 0) & neg_corner, rows)
     out = []
     _emit(out, ctx, repeated, "elements.repeated_nodes", "error",
-          "elements list the same node twice: a collapsed element with no valid stiffness")
+          ("element lists", "elements list"), "the same node twice: a collapsed element with no valid stiffness")
     _emit(out, ctx, zero, "elements.zero_measure", "error",
-          "elements have zero length, area or volume on their corner nodes: "
+          ("element has", "elements have"), "zero length, area or volume on their corner nodes: "
           "a singular element stiffness")
     whole = _whole_blocks(ctx, inverted)
     _emit(out, ctx, inverted, "elements.inverted", "error",
-          "solid elements have negative volume (node order reversed, right-hand rule): "
+          ("solid element has", "solid elements have"), "negative volume (node order reversed, right-hand rule): "
           "negative Jacobian, the solver stops or gives wrong answers"
           + (f"; every element of {' and '.join(whole)} is inverted: the file probably "
              "uses another node-order convention than VTK's (a reader or export "
              "setting) rather than a meshing fault" if whole else ""))
     _emit(out, ctx, distorted, "elements.distorted", "error",
-          "elements have a negative Jacobian at a corner (concave, twisted or folded): "
+          ("element has", "elements have"), "a negative Jacobian at a corner (concave, twisted or folded): "
           "the element stiffness is unreliable")
     whole = _whole_blocks(ctx, clockwise)
     _emit(out, ctx, clockwise, "elements.clockwise", "warning",
-          "plane elements run clockwise seen from +z (the reverse of the usual "
+          ("plane element runs", "plane elements run"), "clockwise seen from +z (the reverse of the usual "
           "counter-clockwise order): negative area for solvers that expect it"
           + (f"; all of {' and '.join(whole)} run so: the mesh was probably drawn with "
              "its normal along -z" if whole else ""))
@@ -147,9 +147,10 @@ def _measure(shape: str, p: NDArray[np.float64], planar: bool,
 
 
 def _emit(out: list[Finding], ctx: CheckContext, hits: _Hits, code: str, severity: str,
-          text: str) -> None:
+          subject: tuple[str, str], text: str) -> None:
     if hits.count:
-        out.append(Finding(code, severity, hits.count, f"{hits.count} {text}",
+        out.append(Finding(code, severity, hits.count,
+                           f"{counted(hits.count, *subject)} {text}",
                            element_ids=hits.ids(ctx), element_id_kind=ctx.element_id_kind,
                            where=hits.where(ctx)))
 
@@ -213,7 +214,7 @@ def _duplicates(ctx: CheckContext, digests: dict[int, NDArray[np.int64]]) -> lis
             hits.add(int(bi), np.ones(sel.size, dtype=bool), row[sel])
     out: list[Finding] = []
     _emit(out, ctx, hits, "elements.duplicate", "error",
-          "elements repeat the node set of another element: their stiffness counts twice")
+          ("element repeats", "elements repeat"), "the node set of another element: their stiffness counts twice")
     return out
 
 
@@ -237,7 +238,7 @@ def _mixed_dimension(ctx: CheckContext) -> list[Finding]:
             hits.add(bi, odd, np.flatnonzero(use))
     out: list[Finding] = []
     _emit(out, ctx, hits, "elements.mixed_dimension", "warning",
-          "elements differ in dimension from the rest of their part (a beam in a solid, a "
+          ("element differs", "elements differ"), "in dimension from the rest of their part (a beam in a solid, a "
           "plate on a frame): check that the joint transmits what is meant, rotations "
           "included")
     return out

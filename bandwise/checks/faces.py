@@ -14,7 +14,7 @@ from numpy.typing import NDArray
 
 from ..merge import coincident_pairs
 from .context import CheckContext
-from .findings import Finding
+from .findings import Finding, counted
 
 
 def check_free_facets(ctx: CheckContext) -> list[Finding]:
@@ -31,7 +31,8 @@ def check_free_facets(ctx: CheckContext) -> list[Finding]:
         if sel.size:
             out.append(Finding(
                 f"facets.free_{word}", "note", int(sel.size),
-                f"{sel.size} free {word} (owned by one element: the outer skin"
+                f"{counted(int(sel.size), 'free ' + word[:-1], 'free ' + word)} (owned by one "
+                "element: the outer skin"
                 f"{'' if dim == 3 else ' of plane and shell meshes'} and any cut)"))
     solid_or_plane = free[dims >= 2]
     pairs = _coincident_facets(ctx, solid_or_plane)
@@ -42,7 +43,8 @@ def check_free_facets(ctx: CheckContext) -> list[Finding]:
         _, rule = ctx.tolerance
         out.append(Finding(
             "facets.coincident_free", "error", len(pairs),
-            f"{len(pairs)} pairs of free faces or edges lie on each other ({rule}): an "
+            f"{counted(len(pairs), 'pair', 'pairs')} of free faces or edges lie on each other "
+            f"({rule}): an "
             "internal crack or unmerged seam; the mesh is cut there",
             node_ids=ctx.node_ids(nodes), node_id_kind=ctx.node_id_kind,
             element_ids=ctx.element_ids(blocks, rows), element_id_kind=ctx.element_id_kind))

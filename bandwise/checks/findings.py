@@ -87,6 +87,11 @@ class Finding:
         return out
 
 
+def counted(n: int, one: str, many: str) -> str:
+    """``n`` and the words that agree with it: ``counted(1, "node is", "nodes are")``."""
+    return f"{n:,} {one if n == 1 else many}"
+
+
 def _preview(ids: tuple[int, ...], k: int = 6) -> str:
     head = ", ".join(str(i) for i in ids[:k])
     return f"[{head}{', ...' if len(ids) > k else ''}]"

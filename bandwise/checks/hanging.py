@@ -13,7 +13,7 @@ from numpy.typing import NDArray
 from scipy.spatial import cKDTree
 
 from .context import CheckContext
-from .findings import Finding
+from .findings import Finding, counted
 
 #: Nearest free-facet corners examined around each free facet (its own
 #: corners, the nodes hanging on it and a few neighbours fit comfortably).
@@ -56,8 +56,8 @@ def check_hanging_nodes(ctx: CheckContext) -> list[Finding]:
         return []
     return [Finding(
         "nodes.hanging", "warning", int(hanging.size),
-        f"{hanging.size} nodes lie on an edge or face of a neighbouring element without being "
-        f"its nodes ({rule}): hanging nodes; unless tied by constraint equations, the "
+        f"{counted(int(hanging.size), 'node lies', 'nodes lie')} on an edge or face of a "
+        f"neighbouring element without being its nodes ({rule}): hanging nodes; unless tied by constraint equations, the "
         "displacement is not continuous there",
         node_ids=ctx.node_ids(hanging), node_id_kind=ctx.node_id_kind)]
 

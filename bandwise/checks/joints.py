@@ -27,7 +27,7 @@ from numpy.typing import NDArray
 from ..graph import NodeGraph, graph_from_cells
 from ..topology import node_block_pairs
 from .context import CheckContext
-from .findings import Finding
+from .findings import Finding, counted
 
 #: Joints described one by one in a finding's details.
 DESCRIBED_JOINTS = 50
@@ -178,28 +178,32 @@ def _region_joints(ctx: CheckContext) -> list[Finding]:
         severity, text = _joint_wording(code, bool(hinge_dim[idx].all()))
         details = tuple(_joint_detail(ctx, shared, start, count, pa, pb, sizes, i)
                         for i in idx[:DESCRIBED_JOINTS])
-        out.append(Finding(code, severity, int(idx.size), f"{idx.size} {text}",
+        out.append(Finding(code, severity, int(idx.size),
+                           f"{counted(int(idx.size), *text[:2])} {text[2]}",
                            node_ids=ctx.node_ids(nodes), node_id_kind=ctx.node_id_kind,
                            details=details))
     return out
 
 
-def _joint_wording(code: str, hinge: bool) -> tuple[str, str]:
+def _joint_wording(code: str, hinge: bool) -> tuple[str, tuple[str, str, str]]:
+    """Severity and (singular subject, plural subject, rest) of a joint finding."""
     if code == "joints.single_node":
         if hinge:
-            return "error", ("pairs of regions are joined by a single node: a hinge, the "
-                             "regions can rotate relative to each other")
-        return "warning", ("pairs of shell regions are joined by a single node: a point "
-                           "joint with a stress singularity")
+            return "error", ("pair of regions is", "pairs of regions are",
+                             ("joined by a single node: a hinge, the regions can rotate "
+                             "relative to each other"))
+        return "warning", ("pair of shell regions is", "pairs of shell regions are",
+                           "joined by a single node: a point joint with a stress singularity")
     if code == "joints.edge_only":
-        return "error", ("pairs of solid regions share only an edge: a hinge line, the "
-                         "regions can rotate about it")
+        return "error", ("pair of solid regions shares", "pairs of solid regions share",
+                         "only an edge: a hinge line, the regions can rotate about it")
     if code == "joints.nonconforming":
-        return "warning", ("pairs of regions share nodes but no face or edge (hanging nodes "
-                           "or a mismatched interface): displacements are not continuous "
-                           "between them")
-    return "warning", ("line elements are attached to a solid or plane mesh by a single node: "
-                       "nothing holds their rotation there")
+        return "warning", ("pair of regions shares", "pairs of regions share",
+                           ("nodes but no face or edge (hanging nodes or a mismatched "
+                           "interface): displacements are not continuous between them"))
+    return "warning", ("line element is", "line elements are",
+                       ("attached to a solid or plane mesh by a single node: nothing holds "
+                       "their rotation there"))
 
 
 def _joint_detail(ctx: CheckContext, shared: NDArray[np.int64], start: NDArray[np.int64],
@@ -254,6 +258,7 @@ def _articulations(ctx: CheckContext) -> list[Finding]:
         return []
     return [Finding(
         "nodes.articulation", "warning", int(cut.size),
-        f"{cut.size} nodes each hold parts of the solid/plane mesh together on their own "
+        f"{counted(int(cut.size), 'node alone holds', 'nodes each alone hold')} parts of "
+        "the solid/plane mesh together "
         "(articulation nodes of the node graph): check for hinges",
         node_ids=ctx.node_ids(cut), node_id_kind=ctx.node_id_kind)]

@@ -12,7 +12,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .context import CheckContext
-from .findings import Finding
+from .findings import Finding, counted
 
 
 def check_orphans(ctx: CheckContext) -> list[Finding]:
@@ -27,13 +27,15 @@ def check_orphans(ctx: CheckContext) -> list[Finding]:
     if bare.size:
         out.append(Finding(
             "nodes.orphan", "warning", int(bare.size),
-            f"{bare.size} nodes are used by no element: they carry DOFs with no stiffness "
+            f"{counted(bare.size, 'node is', 'nodes are')} used by no element, so DOFs there "
+            "have no stiffness "
             "(zero pivots) unless the solver removes them",
             node_ids=ctx.node_ids(bare), node_id_kind=ctx.node_id_kind))
     if marked.size:
         out.append(Finding(
             "nodes.point_only", "note", int(marked.size),
-            f"{marked.size} nodes belong to no element but to vertex cells or node sets "
+            f"{counted(marked.size, 'node belongs', 'nodes belong')} to no element but to "
+            "vertex cells or node sets "
             "(a point mass, load or reference node?): they need an element, a constraint "
             "or a support to be solved for",
             node_ids=ctx.node_ids(marked), node_id_kind=ctx.node_id_kind))
