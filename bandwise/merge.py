@@ -138,11 +138,11 @@ def resolve_tolerance(graph: NodeGraph, points: NDArray[np.float64],
     if h == 0.0:
         extent = float(np.ptp(points, axis=0).max()) if len(points) else 0.0
         tol = relative_tolerance * (extent or 1.0) * 1e-3
-        return tol, (f"tolerance {tol:.3g} ({relative_tolerance:g} x 1/1000 of the mesh "
-                     "extent: no element edge to measure)")
+        return tol, (f"tolerance {tol:.3g}, {relative_tolerance:g} x 1/1000 of the mesh "
+                     "extent, as no element edge can be measured")
     tol = relative_tolerance * h
-    return tol, (f"tolerance {tol:.3g} ({relative_tolerance:g} x the shortest element "
-                 f"edge, {h:.3g})")
+    return tol, (f"tolerance {tol:.3g}, {relative_tolerance:g} x the shortest element "
+                 f"edge of {h:.3g}")
 
 
 @dataclass(frozen=True)
