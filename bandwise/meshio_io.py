@@ -14,7 +14,9 @@ from __future__ import annotations
 import contextlib
 import io
 import logging
+import mmap
 import os
+import re
 import warnings
 from pathlib import Path
 from typing import Any
@@ -81,6 +83,40 @@ def _one_line(exc: BaseException) -> str:
     return f"{text} ({name})" if name not in ("ReadError",) else text
 
 
+#: Most tags a gmsh data section header may announce (gmsh writes 1 to 4 of each kind).
+_GMSH_MAX_TAGS = 64
+_GMSH_DATA = re.compile(rb"^\$(NodeData|ElementData|ElementNodeData)\r?\n", re.MULTILINE)
+
+
+def _check_gmsh_data_headers(path: Path) -> None:
+    """Refuse a gmsh data section whose header announces absurd tag counts.
+
+    meshio reads such a header line by line, as many times as announced: a
+    damaged count (a billion) would keep it busy for many minutes.
+    """
+    try:
+        with open(path, "rb") as fh, mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as data:
+            for m in _GMSH_DATA.finditer(data):
+                _check_data_header(data, m.end(), path, m.group(1).decode())
+    except (OSError, ValueError):
+        return  # unreadable here: meshio says why
+
+
+def _check_data_header(data: Any, pos: int, path: Path, section: str) -> None:
+    for kind in ("string", "real", "integer"):
+        end = data.find(b"\n", pos)
+        line = bytes(data[pos:end if end >= 0 else len(data)]).strip()
+        if not line.isdigit() or int(line) > _GMSH_MAX_TAGS:
+            raise MeshReadError(f"{path}: malformed ${section} header: {kind} tag count "
+                                f"{line[:20].decode('ascii', 'replace')!r}")
+        pos = end + 1
+        for _ in range(int(line)):
+            end = data.find(b"\n", pos)
+            if end < 0:
+                raise MeshReadError(f"{path}: ${section} header cut short")
+            pos = end + 1
+
+
 def _gmsh_version(path: Path) -> str | None:
     """'2.2' or '4.1' read from a gmsh file header, else None."""
     try:
@@ -124,6 +160,8 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
     from .memory import check_file_fits  # refuse from the header a mesh too big to read
 
     check_file_fits(path)
+    if fmt == "gmsh":
+        _check_gmsh_data_headers(path)
     meshio = _meshio()
     captured = io.StringIO()
     node_tags: dict[str, np.ndarray] = {}
