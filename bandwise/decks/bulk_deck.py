@@ -26,7 +26,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import MeshReadError
-from .deck import Deck, DeckElements, ListRewrite, NodeRef
+from .deck import Deck, DeckElements, ListRewrite, NodeRefs
 
 #: Component digits of the bulk format -> bandwise DOF names.
 DOF_OF_COMPONENT = {"1": "ux", "2": "uy", "3": "uz", "4": "rx", "5": "ry", "6": "rz"}
@@ -241,7 +241,7 @@ class _State:
     set_supports: list[tuple[str, tuple[str, ...]]] = field(default_factory=list)
     links: list[tuple[str, np.ndarray]] = field(default_factory=list)
     loads: list[tuple[str, int]] = field(default_factory=list)
-    refs: list[NodeRef] = field(default_factory=list)
+    refs: NodeRefs = field(default_factory=NodeRefs)
     unhandled: dict[str, int] = field(default_factory=dict)
     includes: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
@@ -256,7 +256,7 @@ class _State:
             raise MeshReadError(f"{self.path}: line {f.line + 1}: {card.name} field "
                                 f"{f.text!r} is not a node id")
         if self.rewritable:
-            self.refs.append(NodeRef(f.line, f.start, f.end, int(f.text), card.name, f.width))
+            self.refs.add(f.line, f.start, f.end, int(f.text), card.name, f.width)
         return int(f.text)
 
     def skip(self, name: str, why: str = "") -> None:

@@ -20,6 +20,7 @@ number still fits the field it was written in.  See :func:`new_ids`.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -54,6 +55,64 @@ class NodeRef:
     node_id: int
     card: str
     width: int = 0
+
+
+class NodeRefs:
+    """Every node id written in a deck: columns of line, span, id, field width and card.
+
+    Filled one reference at a time (:meth:`add`) or a table at a time
+    (:meth:`add_block`); iterating gives :class:`NodeRef` values.
+    """
+
+    def __init__(self) -> None:
+        self.cards: list[str] = []
+        self._card_index: dict[str, int] = {}
+        self._single: list[tuple[int, int, int, int, int, int]] = []
+        self._blocks: list[tuple[NDArray[np.int64], ...]] = []
+        self._frozen: tuple[NDArray[np.int64], ...] | None = None
+
+    def _card(self, card: str) -> int:
+        if card not in self._card_index:
+            self._card_index[card] = len(self.cards)
+            self.cards.append(card)
+        return self._card_index[card]
+
+    def add(self, line: int, start: int, end: int, node_id: int, card: str, width: int = 0) -> None:
+        """One reference."""
+        self._single.append((line, start, end, node_id, width, self._card(card)))
+        self._frozen = None
+
+    def add_block(self, lines: NDArray[np.integer], start: NDArray[np.integer],
+                  end: NDArray[np.integer], node_id: NDArray[np.integer], card: str,
+                  width: int = 0) -> None:
+        """Many references of one card at once (arrays of the same shape)."""
+        cols = [np.asarray(a, dtype=np.int64).ravel() for a in (lines, start, end, node_id)]
+        n = cols[0].size
+        cols += [np.full(n, width, dtype=np.int64), np.full(n, self._card(card), dtype=np.int64)]
+        self._blocks.append(tuple(cols))
+        self._frozen = None
+
+    def columns(self) -> tuple[NDArray[np.int64], ...]:
+        """(line, start, end, node_id, width, card index), each one array over all references."""
+        if self._frozen is None:
+            parts = list(self._blocks)
+            if self._single:
+                single = np.asarray(self._single, dtype=np.int64).reshape(-1, 6)
+                parts.append(tuple(single[:, c] for c in range(6)))
+            if not parts:
+                self._frozen = tuple(np.zeros(0, dtype=np.int64) for _ in range(6))
+            else:
+                self._frozen = tuple(np.concatenate([p[c] for p in parts]) for c in range(6))
+        return self._frozen
+
+    def __len__(self) -> int:
+        return int(self.columns()[0].size)
+
+    def __iter__(self) -> Iterator[NodeRef]:
+        line, start, end, ids, width, card = self.columns()
+        for k in range(line.size):
+            yield NodeRef(int(line[k]), int(start[k]), int(end[k]), int(ids[k]),
+                          self.cards[int(card[k])], int(width[k]))
 
 
 @dataclass(frozen=True)
@@ -156,7 +215,7 @@ class Deck:
     supports: list[tuple[int, tuple[str, ...]]] = field(default_factory=list)
     links: list[tuple[str, NDArray[np.int64]]] = field(default_factory=list)
     loads: list[tuple[str, int]] = field(default_factory=list)
-    refs: list[NodeRef] = field(default_factory=list)
+    refs: NodeRefs = field(default_factory=NodeRefs)
     list_rewrites: list[ListRewrite] = field(default_factory=list)
     unhandled: dict[str, int] = field(default_factory=dict)
     includes: list[str] = field(default_factory=list)
@@ -196,17 +255,26 @@ class Deck:
         Nodes are in file order, ``node_ids`` holds their deck ids, node sets
         become point sets, and each element type becomes a cell block with
         the element ids as the cell field ``element_id``.
+
+        Raises
+        ------
+        MeshReadError
+            A reference to an undefined node, non-finite coordinates, no elements.
         """
+        from ..meshio_io import validate_model
+
         blocks = [CellBlock(e.cell_type, self.index_of(e.connectivity, f"{e.card} element"))
                   for e in self.elements]
         element_ids = [e.element_ids.copy() for e in self.elements]
         point_sets = {name: self.index_of(ids, f"node set {name}")
                       for name, ids in self.node_sets.items()}
         fmt = "abaqus" if self.kind == "keyword" else "nastran"
-        return Model(points=self.points.copy(), cells=blocks,
-                     cell_data={"element_id": element_ids} if blocks else {},
-                     point_sets=point_sets, node_ids=self.node_ids.copy(),
-                     source=self.path, file_format=fmt)
+        model = Model(points=self.points.copy(), cells=blocks,
+                      cell_data={"element_id": element_ids} if blocks else {},
+                      point_sets=point_sets, node_ids=self.node_ids.copy(),
+                      source=self.path, file_format=fmt)
+        validate_model(model)
+        return model
 
 
 def new_ids(node_ids: NDArray[np.integer], perm: NDArray[np.integer]) -> dict[int, int]:

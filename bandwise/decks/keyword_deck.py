@@ -20,7 +20,8 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import MeshReadError
-from .deck import Deck, DeckElements, ListRewrite, NodeRef
+from .columns import Table, comma_table, data_runs
+from .deck import Deck, DeckElements, ListRewrite, NodeRefs
 
 #: DOF numbers of the keyword format -> bandwise DOF names.
 DOF_OF_NUMBER = {1: "ux", 2: "uy", 3: "uz", 4: "rx", 5: "ry", 6: "rz", 11: "t"}
@@ -85,14 +86,14 @@ class _State:
 
     path: str
     node_ids: list[int] = field(default_factory=list)
-    coords: list[tuple[float, float, float]] = field(default_factory=list)
-    elements: dict[tuple[str, str], tuple[list[int], list[list[int]]]] = field(default_factory=dict)
+    coords: list[np.ndarray] = field(default_factory=list)
+    elements: dict[tuple[str, str], tuple[list[int], list[np.ndarray]]] = field(default_factory=dict)
     node_sets: dict[str, list[int]] = field(default_factory=dict)
     set_names: dict[str, str] = field(default_factory=dict)  # upper -> as written
     supports: list[tuple[int, tuple[str, ...]]] = field(default_factory=list)
     links: list[tuple[str, np.ndarray]] = field(default_factory=list)
     loads: list[tuple[str, int]] = field(default_factory=list)
-    refs: list[NodeRef] = field(default_factory=list)
+    refs: NodeRefs = field(default_factory=NodeRefs)
     list_rewrites: list[ListRewrite] = field(default_factory=list)
     unhandled: dict[str, int] = field(default_factory=dict)
     includes: list[str] = field(default_factory=list)
@@ -164,7 +165,7 @@ class _Reader:
 
     def ref(self, k: int, node: tuple[int, int, int], card: str) -> int:
         if self.rewritable:
-            self.st.refs.append(NodeRef(k, node[1], node[2], node[0], card))
+            self.st.refs.add(k, node[1], node[2], node[0], card)
         return node[0]
 
     def nodes_of(self, tok: _Token, k: int, card: str) -> list[int]:
@@ -239,29 +240,60 @@ class _Reader:
 
     def node_card(self, options: dict[str, _Token], k: int, data: list[int]) -> None:
         st = self.st
-        members = []
-        for j in data:
-            toks = _tokens(self.lines[j])
-            node = _node_id(toks[0])
-            if node is None or "." in toks[0].text:
-                raise MeshReadError(f"{st.path}: line {j + 1}: node id {toks[0].text!r} is not "
-                                    "a positive integer")
-            xyz = [_float(t, st, j) for t in toks[1:4]] + [0.0] * (4 - min(len(toks), 4))
-            st.node_ids.append(self.ref(j, node, "NODE"))
-            st.coords.append((xyz[0], xyz[1], xyz[2]))
-            members.append(node[0])
+        members: list[int] = []
+        for first, stop in data_runs(self.lines, data):
+            table = comma_table(self.lines, first, stop) if stop - first > 8 else None
+            if table is None or not 2 <= table.values.shape[1] <= 4 or not table.integer[:, 0].all():
+                for j in range(first, stop):
+                    members.append(self.node_line(j))
+                continue
+            ids = table.values[:, 0].astype(np.int64)
+            xyz = np.zeros((ids.size, 3))
+            xyz[:, :table.values.shape[1] - 1] = table.values[:, 1:]
+            if self.rewritable:
+                st.refs.add_block(table.lines, table.start[:, 0], table.end[:, 0], ids, "NODE")
+            st.node_ids.extend(ids.tolist())
+            st.coords.append(xyz)
+            members.extend(ids.tolist())
         if "NSET" in options:
             self.add_set(options["NSET"].text, members)
         if "SYSTEM" in options and options["SYSTEM"].text.upper() not in ("", "R"):
             st.notes.append(f"line {k + 1}: nodes given in system {options['SYSTEM'].text}; "
                             "coordinates taken as written")
 
+    def node_line(self, j: int) -> int:
+        """One node line read on its own; returns the node id."""
+        st = self.st
+        toks = _tokens(self.lines[j])
+        node = _node_id(toks[0])
+        if node is None or "." in toks[0].text:
+            raise MeshReadError(f"{st.path}: line {j + 1}: node id {toks[0].text!r} is not "
+                                "a positive integer")
+        xyz = [_float(t, st, j) for t in toks[1:4]] + [0.0] * (4 - min(len(toks), 4))
+        st.node_ids.append(self.ref(j, node, "NODE"))
+        st.coords.append(np.array([xyz[:3]], dtype=np.float64))
+        return node[0]
+
     def element_card(self, options: dict[str, _Token], k: int, data: list[int]) -> None:
         st = self.st
         etype = options.get("TYPE", _Token("", 0, 0)).text.upper()
         if not etype:
             raise MeshReadError(f"{st.path}: line {k + 1}: *ELEMENT without TYPE=")
-        for record in self.records(data):
+        slow: list[int] = []
+        for first, stop in data_runs(self.lines, data):
+            table = comma_table(self.lines, first, stop) if stop - first > 8 else None
+            if table is None or table.values.shape[1] < 2 or not table.integer.all():
+                slow.extend(range(first, stop))
+                continue
+            self.element_records(etype, self.records(slow))  # keep the file order
+            slow = []
+            self.element_table(etype, table)
+        self.element_records(etype, self.records(slow))
+
+    def element_records(self, etype: str, records: list[list[tuple[int, _Token]]]) -> None:
+        """Elements read record by record (continuation lines, odd tokens)."""
+        st = self.st
+        for record in records:
             first = record[0][1]
             eid = _int(first, st, record[0][0], "element id")
             nodes = []
@@ -278,7 +310,24 @@ class _Reader:
                 continue
             ids, conn = st.elements.setdefault((etype, cell), ([], []))
             ids.append(eid)
-            conn.append(nodes)
+            conn.append(np.asarray([nodes], dtype=np.int64))
+
+    def element_table(self, etype: str, table: Table) -> None:
+        """A uniform run of one-line elements, read at once."""
+        st = self.st
+        values = table.values.astype(np.int64)
+        nodes = values[:, 1:]
+        if self.rewritable:
+            st.refs.add_block(np.repeat(table.lines, nodes.shape[1]), table.start[:, 1:],
+                              table.end[:, 1:], nodes, "ELEMENT")
+        cell = cell_type_of(etype, nodes.shape[1])
+        if cell is None:
+            if nodes.shape[1] > 1:
+                st.links.extend((etype, row) for row in nodes)
+            return
+        ids, conn = st.elements.setdefault((etype, cell), ([], []))
+        ids.extend(values[:, 0].tolist())
+        conn.append(nodes)  # a block of rows, stacked with the others at the end
 
     def records(self, data: list[int]) -> list[list[tuple[int, _Token]]]:
         """Data records: a line ending with a comma continues on the next one."""
@@ -461,10 +510,10 @@ def parse_keyword_deck(text: str, source: str = "deck", folder: Path | None = No
         raise MeshReadError(f"{source}: node id {int(uniq[counts > 1][0])} is defined twice "
                             "(decks whose parts each number their nodes from 1 are not supported)")
     elements = [DeckElements(etype, cell, np.asarray(eids, dtype=np.int64),
-                             np.asarray(conn, dtype=np.int64))
+                             np.concatenate(conn).astype(np.int64, copy=False))
                 for (etype, cell), (eids, conn) in st.elements.items()]
     return Deck(path=source, kind="keyword", lines=lines, node_ids=ids,
-                points=np.asarray(st.coords, dtype=np.float64).reshape(-1, 3),
+                points=np.concatenate(st.coords).reshape(-1, 3),
                 elements=elements,
                 node_sets={k: np.asarray(v, dtype=np.int64) for k, v in st.node_sets.items()},
                 supports=st.supports, links=st.links, loads=st.loads, refs=st.refs,

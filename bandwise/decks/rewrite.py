@@ -66,16 +66,26 @@ def renumber_deck(deck: Deck, new_id_of_old_id: Mapping[int, int]) -> DeckRewrit
     mapping = _checked_map(deck, new_id_of_old_id)
     lines = list(deck.lines)
     changed: dict[int, str] = {}
-    by_line: dict[int, list[NodeRef]] = {}
-    for ref in deck.refs:
-        by_line.setdefault(ref.line, []).append(ref)
-    for k, refs in by_line.items():
+    line, start, end, old_ids, width, card = deck.refs.columns()
+    new_ids = _mapped_ids(mapping, old_ids)
+    order = np.lexsort((-start, line))           # by line, right to left within a line
+    line, start, end = line[order], start[order], end[order]
+    new_ids, width, card = new_ids[order], width[order], card[order]
+    cuts = np.flatnonzero(np.diff(line)) + 1
+    for a, b in zip(np.concatenate([[0], cuts]).tolist(), np.concatenate([cuts, [line.size]]).tolist()):
+        k = int(line[a])
         text = lines[k]
-        for ref in sorted(refs, key=lambda r: r.start, reverse=True):
-            text = _replaced(text, ref, mapping[ref.node_id], deck.path)
+        for r in range(a, b):
+            s, e, w = int(start[r]), int(end[r]), int(width[r])
+            digits = str(int(new_ids[r]))
+            if not w and len(digits) == e - s:  # the common case: same width, free format
+                text = text[:s] + digits + text[e:]
+                continue
+            ref = NodeRef(k, s, e, 0, deck.refs.cards[int(card[r])], w)
+            text = _replaced(text, ref, int(new_ids[r]), deck.path)
         if text != lines[k]:
             lines[k] = text
-            changed[k] = refs[0].card
+            changed[k] = deck.refs.cards[int(card[a])]
     notes = []
     for rw in deck.list_rewrites:
         ending = _ending(lines[rw.lines[0]]) or "\n"
@@ -132,6 +142,19 @@ def _bulk_list(head: tuple[str, ...], ids: list[int], ending: str) -> str:
     for i in range(0, len(rest), 8):
         text += "+".ljust(8) + "".join(f.ljust(8) for f in rest[i:i + 8]).rstrip() + ending
     return text
+
+
+def _mapped_ids(mapping: dict[int, int], old: np.ndarray) -> np.ndarray:
+    """New id of every old id in ``old`` (vectorised lookup)."""
+    keys = np.fromiter(mapping.keys(), dtype=np.int64, count=len(mapping))
+    values = np.fromiter(mapping.values(), dtype=np.int64, count=len(mapping))
+    order = np.argsort(keys)
+    keys, values = keys[order], values[order]
+    pos = np.minimum(np.searchsorted(keys, old), max(keys.size - 1, 0))
+    if old.size and (keys.size == 0 or (keys[pos] != old).any()):
+        missing = old[keys[pos] != old] if keys.size else old
+        raise InputError(f"the id map gives no new id for node {int(missing[0])}")
+    return values[pos] if old.size else old.copy()
 
 
 def _ending(line: str) -> str:
