@@ -28,12 +28,15 @@ Set the environment variable ``BANDWISE_MEMORY_CHECK=off`` to run anyway.
 
 from __future__ import annotations
 
+import mmap
 import os
 import re
+import struct
 from dataclasses import asdict, dataclass
 from pathlib import Path
+from typing import Any
 
-from .errors import InputError
+from .errors import InputError, MeshReadError
 
 #: Typical number of neighbours of a node, by main cell type (regular meshes).
 DEGREE = {
@@ -180,47 +183,77 @@ def check_fits(estimate: int, available: int | None = None, what: str = "this me
                      "(BANDWISE_MEMORY_CHECK=off runs anyway)")
 
 
-_GMSH_COUNT = re.compile(rb"\$Nodes\s*\n\s*(\d+)(?:\s+(\d+))?[^\n]*\n")
-_GMSH_ELEMENTS = re.compile(rb"\$Elements\s*\n\s*(\d+)(?:\s+(\d+))?[^\n]*\n")
 _VTU_PIECE = re.compile(rb'NumberOfPoints="(\d+)"\s+NumberOfCells="(\d+)"')
-#: Bytes read from the start of a file to find its counts.
+#: Bytes read from the start of a file to find its counts (VTU).
 HEADER_BYTES = 1 << 16
+#: Fewest bytes a node and an element take in a gmsh file (text, binary): ``"1 0 0\n"``, three
+#: doubles; an element with its tag and one node.
+_GMSH_MIN_BYTES = {False: (6, 4), True: (24, 8)}
 
 
-def header_counts(path: str | os.PathLike[str]) -> tuple[int, int] | None:
-    """(nodes, cells) from a file's header without reading it, where the format allows.
+@dataclass(frozen=True)
+class HeaderCounts:
+    """Counts a file announces before its data, and whether they can be believed."""
 
-    gmsh 2.2 and 4.1 (ASCII, and binary: the counts are written as text)
-    give them on the line after ``$Nodes`` / ``$Elements`` when those
-    sections start within the first :data:`HEADER_BYTES`; VTU gives them in
-    its ``Piece`` element.  Other formats: None.
+    nodes: int
+    cells: int
+    plausible: bool = True
+
+
+def _gmsh_counts(data: Any) -> HeaderCounts | None:
+    """Nodes and elements announced by a gmsh file (2.2 or 4.x, text or binary)."""
+    head = bytes(data[:256]).split(b"\n")
+    fields = head[1].split() if len(head) > 1 else []
+    if len(fields) < 3:
+        return None
+    four, binary = fields[0].startswith(b"4"), fields[1] == b"1"
+    size_t = "<Q" if fields[2] == b"8" else "<I"
+    counts = []
+    for name in (b"$Nodes", b"$Elements"):
+        pos = data.find(name + b"\n")
+        if pos < 0:
+            pos = data.find(name + b"\r\n")
+        if pos < 0:
+            counts.append(0)
+            continue
+        pos = data.find(b"\n", pos) + 1
+        if four and binary:
+            width = struct.calcsize(size_t)
+            raw = bytes(data[pos:pos + 2 * width])
+            if len(raw) < 2 * width:
+                return None
+            counts.append(struct.unpack(size_t, raw[width:])[0])
+        else:
+            line = bytes(data[pos:data.find(b"\n", pos)]).split()
+            if not line or not all(t.isdigit() for t in line[:2]):
+                return None
+            counts.append(int(line[1] if four and len(line) > 1 else line[0]))
+    node_bytes, cell_bytes = _GMSH_MIN_BYTES[binary]
+    plausible = counts[0] * node_bytes + counts[1] * cell_bytes <= len(data)
+    return HeaderCounts(counts[0], counts[1], plausible)
+
+
+def header_counts(path: str | os.PathLike[str]) -> HeaderCounts | None:
+    """Nodes and cells a file announces in its header, without reading its data.
+
+    gmsh 2.2 and 4.x, text or binary (the counts after ``$Nodes`` and
+    ``$Elements``), and VTU (its ``Piece`` element).  Other formats: None.
+    A gmsh file announcing more nodes and elements than its size can hold
+    is marked not plausible.
     """
-    path = Path(path)
     try:
         with open(path, "rb") as fh:
-            head = fh.read(HEADER_BYTES)
-    except OSError:
+            if os.fstat(fh.fileno()).st_size == 0:
+                return None
+            with mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as data:
+                if data[:11] == b"$MeshFormat":
+                    return _gmsh_counts(data)
+                head = bytes(data[:HEADER_BYTES])
+    except (OSError, ValueError, struct.error):
         return None
-    if head.startswith(b"$MeshFormat"):
-        fields = head.split(None, 4)
-        if len(fields) < 4:
-            return None
-        version, binary = fields[1], fields[2] == b"1"
-        four = version.startswith(b"4")
-        if four and binary:  # the counts themselves are binary there
-            return None
-        nodes = _GMSH_COUNT.search(head)
-        if not nodes:
-            return None
-        n = int(nodes.group(2) if four and nodes.group(2) else nodes.group(1))
-        elements = _GMSH_ELEMENTS.search(head)  # often beyond the header: nodes only
-        cells = 0
-        if elements:
-            cells = int(elements.group(2) if four and elements.group(2) else elements.group(1))
-        return n, cells
     piece = _VTU_PIECE.search(head)
     if piece and b"UnstructuredGrid" in head:
-        return int(piece.group(1)), int(piece.group(2))
+        return HeaderCounts(int(piece.group(1)), int(piece.group(2)))
     return None
 
 
@@ -228,11 +261,23 @@ def check_file_fits(path: str | os.PathLike[str], available: int | None = None) 
     """Refuse, from its header alone, a file whose mesh will not fit (see :func:`header_counts`).
 
     The header gives no cell types: cells of unknown type count 4 nodes and
-    a node degree of 6; when the cell count is beyond the header, every node
-    counts as in one cell.  Both err low, so that nothing that fits is refused.
+    a node degree of 6; when it gives no cell count, every node counts as in
+    one cell.  Both err low, so that nothing that fits is refused.
+
+    Raises
+    ------
+    MeshReadError
+        The header announces more than the file can hold (cut short, damaged).
+    InputError
+        The mesh will not fit in memory.
     """
     counts = header_counts(path)
     if counts is None:
         return
-    n, cells = counts
+    if not counts.plausible:
+        raise MeshReadError(f"{path}: the file announces {counts.nodes:,} nodes and "
+                            f"{counts.cells:,} elements, more than its "
+                            f"{Path(path).stat().st_size:,} bytes can hold: it is cut short or "
+                            "damaged")
+    n, cells = counts.nodes, counts.cells
     check_fits(estimate_bytes(n, {"unknown": cells or n}), available, what=str(path))

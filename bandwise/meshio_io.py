@@ -195,6 +195,10 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
     return sets_from_fields(_in_tag_order(model, node_tags.get("tags")))
 
 
+#: Largest node tag accepted, as a multiple of the node count (sparse tags are allowed).
+_TAG_SPREAD = 100
+
+
 @contextlib.contextmanager
 def _gmsh41_node_tags(store: dict[str, np.ndarray]):
     """Keep the node tags meshio's gmsh 4.1 reader reads and then drops.
@@ -212,6 +216,11 @@ def _gmsh41_node_tags(store: dict[str, np.ndarray]):
 
     def reading(*args: Any, **kwargs: Any) -> Any:
         points, tags, dim_tags = original(*args, **kwargs)
+        top = int(tags.max(initial=-1)) + 1
+        if top > max(_TAG_SPREAD * len(tags), 10**7) or int(tags.min(initial=0)) < 0:
+            # the reader would next allocate (and fill) an array as long as the largest tag
+            raise ValueError(f"node tag {top if top > 0 else int(tags.min()) + 1} is out of "
+                             f"range for a file of {len(tags)} nodes")
         store["tags"] = np.array(tags)
         return points, tags, dim_tags
 

@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 from bandwise import memory
-from bandwise.errors import InputError
+from bandwise.errors import InputError, MeshReadError
 from bandwise.generate import tet_grid
 from bandwise.memory import (
     check_fits,
@@ -73,10 +73,10 @@ def test_header_counts_match_the_full_read(fmt, ext, tmp_path):
     model = tet_grid(6, 5, 4)
     path = tmp_path / f"box{ext}"
     write_model(model, path, fmt)
-    n, cells = header_counts(path)
+    counts = header_counts(path)
     back = read_model(path)
-    assert n == back.n_nodes == model.n_nodes
-    assert cells == back.n_cells
+    assert counts.nodes == back.n_nodes == model.n_nodes
+    assert counts.cells == back.n_cells and counts.plausible
 
 
 def test_header_counts_of_ascii_gmsh41(tmp_path):
@@ -88,16 +88,28 @@ def test_header_counts_of_ascii_gmsh41(tmp_path):
     mesh = to_meshio(tet_grid(4, 4, 4))
     mesh.cell_data = {"gmsh:physical": [[1] * 162], "gmsh:geometrical": [[1] * 162]}
     meshio.gmsh.write(path, mesh, fmt_version="4.1", binary=False)
-    assert header_counts(path) == (64, 162)
+    assert header_counts(path) == memory.HeaderCounts(64, 162)
 
 
 def test_header_counts_none_where_the_format_does_not_allow(tmp_path):
     path = tmp_path / "box.inp"
     write_model(tet_grid(3, 3, 3), path)
     assert header_counts(path) is None
+
+
+def test_header_counts_of_binary_gmsh41(tmp_path):
     binary = tmp_path / "box.msh"
-    write_model(tet_grid(3, 3, 3), binary, "gmsh")   # 4.1 binary: counts are binary
-    assert header_counts(binary) is None
+    write_model(tet_grid(4, 3, 3), binary, "gmsh")   # 4.1 binary: counts are size_t
+    assert header_counts(binary) == memory.HeaderCounts(36, 6 * 3 * 2 * 2)
+
+
+def test_announced_counts_beyond_the_file_size_are_refused(tmp_path):
+    path = tmp_path / "box.msh"
+    write_model(tet_grid(4, 4, 4), path, "gmsh22")
+    data = path.read_bytes().replace(b"$Nodes\n64\n", b"$Nodes\n64000000\n")
+    path.write_bytes(data)
+    with pytest.raises(MeshReadError, match="announces 64,000,000 nodes"):
+        read_model(path)
 
 
 def test_too_large_file_refused_before_reading(tmp_path, monkeypatch):
