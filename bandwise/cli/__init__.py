@@ -53,7 +53,8 @@ def guarded(func: Callable[..., Any]) -> Callable[..., Any]:
         except KeyboardInterrupt:
             fail("interrupted")
         except BrokenPipeError:  # output piped into a command that stopped reading
-            sys.stderr.close()
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, sys.stdout.fileno())  # as the Python docs advise for SIGPIPE
             raise typer.Exit(EXIT_OK) from None
         except MemoryError:
             fail("out of memory")
