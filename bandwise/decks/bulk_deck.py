@@ -182,16 +182,88 @@ def _is_continuation(line: str) -> bool:
     return bool(line.strip()) and line[0] in "+*, "
 
 
-def bulk_cards(lines: list[str], source: str) -> tuple[list[Card], list[int], list[str]]:
-    """The cards of the bulk section, the lines of include cards, and notes."""
+@dataclass(frozen=True)
+class Run:
+    """Consecutive one-line small-field cards of one name, read at once (:mod:`.columns`)."""
+
+    name: str
+    first: int
+    stop: int
+
+
+#: Cards read as tables when they come in runs of one-line small-field cards:
+#: name -> node count (GRID: none).
+FAST_CARDS = {"GRID": 0, "CTETRA": 4, "CQUAD4": 4, "CTRIA3": 3, "CROD": 2}
+#: Shortest run worth a table.
+FAST_RUN = 16
+
+
+def _fast_name(line: str) -> str | None:
+    """The card name when a line is a one-line small-field card that can go in a table.
+
+    ``GRID*`` (large field) is its first line; the run reader checks the second.
+    """
+    if line[:5].upper() == "GRID*" and "," not in line and "\t" not in line and "$" not in line:
+        return "GRID*"
+    name = line[:8].strip().upper()
+    if name not in FAST_CARDS or "," in line or "\t" in line or "$" in line:
+        return None
+    body = line.rstrip("\r\n")
+    if body[72:].strip():
+        return None  # a continuation marker in field 10
+    return name
+
+
+def _fast_runs(lines: list[str], start: int, stop: int) -> dict[int, int]:
+    """first line -> stop of every run of at least :data:`FAST_RUN` table-ready lines."""
+    names = [_fast_name(lines[k]) for k in range(start, stop)]
+    runs: dict[int, int] = {}
+    k = 0
+    while k < len(names):
+        j = k
+        if names[k] == "GRID*":  # pairs: GRID* line, then its '*' line
+            while j + 1 < len(names) and names[j] == "GRID*" and lines[start + j + 1][:1] == "*" \
+                    and not lines[start + j + 1].rstrip("\r\n")[72:].strip():
+                j += 2
+            if j - k >= 2 * FAST_RUN and (start + j >= stop or not _is_continuation(lines[start + j])) \
+                    and "".join(lines[start + k:start + j]).isascii():
+                runs[start + k] = start + j
+            k = max(j, k + 1)
+            continue
+        while j < len(names) and names[j] is not None and names[j] == names[k]:
+            j += 1
+        if names[k] is not None:
+            end = j
+            if start + end < stop and _is_continuation(lines[start + end]):
+                end -= 1  # the last card goes on: not one line
+            if end - k >= FAST_RUN and "".join(lines[start + k:start + end]).isascii():
+                runs[start + k] = start + end
+        k = max(j, k + 1)
+    return runs
+
+
+def bulk_cards(lines: list[str], source: str, fast: bool = True
+               ) -> tuple[list[Card | Run], list[int], list[str]]:
+    """The cards of the bulk section, the lines of include cards, and notes.
+
+    With ``fast``, runs of one-line small-field cards come back as :class:`Run`.
+    """
     start, stop = _bulk_section(lines)
     notes = []
     if start > 0 and any(re.match(r"^\s*SET\s+\d+\s*=", ln, re.IGNORECASE) for ln in lines[:start]):
         notes.append("case control SET lists (output requests) are not renumbered")
-    cards: list[Card] = []
+    cards: list[Card | Run] = []
     includes: list[int] = []
     current: Card | None = None
-    for k in range(start, stop):
+    runs = _fast_runs(lines, start, stop) if fast else {}
+    k = start - 1
+    while k + 1 < stop:
+        k += 1
+        if k in runs:
+            cards.append(Run(_fast_name(lines[k]) or "", k, runs[k]))
+            current = None
+            k = runs[k] - 1
+            continue
         line = lines[k]
         if not line.strip() or line.lstrip().startswith("$"):
             continue
@@ -218,12 +290,13 @@ def bulk_cards(lines: list[str], source: str) -> tuple[list[Card], list[int], li
 def _bulk_section(lines: list[str]) -> tuple[int, int]:
     start = 0
     for k, line in enumerate(lines):
-        if re.match(r"^\s*BEGIN\s+BULK", line, re.IGNORECASE):
+        if line.lstrip()[:5].upper() == "BEGIN" and re.match(r"^\s*BEGIN\s+BULK", line,
+                                                              re.IGNORECASE):
             start = k + 1
             break
     stop = len(lines)
     for k in range(start, len(lines)):
-        if re.match(r"^\s*ENDDATA", lines[k], re.IGNORECASE):
+        if lines[k][:1] in "Ee " and lines[k].lstrip()[:7].upper() == "ENDDATA":
             stop = k
             break
     return start, stop
@@ -234,8 +307,8 @@ class _State:
     path: str
     rewritable: bool = True
     node_ids: list[int] = field(default_factory=list)
-    coords: list[tuple[float, float, float]] = field(default_factory=list)
-    elements: dict[tuple[str, str], tuple[list[int], list[list[int]]]] = field(default_factory=dict)
+    coords: list[np.ndarray] = field(default_factory=list)
+    elements: dict[tuple[str, str], tuple[list[int], list[np.ndarray]]] = field(default_factory=dict)
     node_sets: dict[str, list[int]] = field(default_factory=dict)
     supports: list[tuple[int, tuple[str, ...]]] = field(default_factory=list)
     set_supports: list[tuple[str, tuple[str, ...]]] = field(default_factory=list)
@@ -278,7 +351,7 @@ def _grid(st: _State, card: Card) -> None:
         raise MeshReadError(f"{st.path}: line {card.line + 1}: GRID {nid} has a coordinate "
                             "that is not a number") from None
     st.node_ids.append(nid)
-    st.coords.append(xyz)  # type: ignore[arg-type]
+    st.coords.append(np.array([xyz], dtype=np.float64))
     if card.integer(1):
         st.notes.append(f"GRID {nid}: coordinates in system {card.text(1)} taken as written")
     if card.text(6):
@@ -306,7 +379,7 @@ def _element(st: _State, card: Card) -> None:
         nodes = [nodes[i] for i in _TO_MESHIO_ORDER[cell]]
     ids, conn = st.elements.setdefault((card.name, cell), ([], []))
     ids.append(eid)
-    conn.append(nodes)
+    conn.append(np.asarray([nodes], dtype=np.int64))
 
 
 def _rbe2(st: _State, card: Card) -> None:
@@ -421,6 +494,105 @@ def _pload4(st: _State, card: Card) -> None:
                 st.node(card, d)
 
 
+def _field_text(arr: np.ndarray, d: int) -> np.ndarray:
+    """Data field ``d`` of every row of a small-field table, as bytes."""
+    a = 8 + 8 * d
+    return np.ascontiguousarray(arr[:, a:a + 8]).view("S8").ravel()
+
+
+def _blank(arr: np.ndarray, d: int) -> np.ndarray:
+    a = 8 + 8 * d
+    return (arr[:, a:a + 8] == 32).all(axis=1)
+
+
+def _run(st: _State, lines: list[str], run: Run) -> bool:
+    """Read a run of one-line cards as a table; False when it is not uniform (read card by card)."""
+    body = [ln.rstrip("\r\n") for ln in lines[run.first:run.stop]]
+    m = len(body)
+    lengths = np.fromiter((len(b) for b in body), dtype=np.int64, count=m)
+    arr = np.frombuffer("".join(b.ljust(72)[:72] for b in body).encode("ascii"),
+                        dtype=np.uint8).reshape(m, 72)
+    if run.name == "GRID*":
+        return _large_grid_table(st, arr, lengths, run)
+    count = FAST_CARDS[run.name]
+    node_fields = [0] if run.name == "GRID" else list(range(2, 2 + count))
+    id_field = 0
+    try:
+        ids = _field_text(arr, id_field).astype(np.int64)
+        nodes = np.stack([_field_text(arr, d).astype(np.int64) for d in node_fields], axis=1)
+    except ValueError:
+        return False
+    if (nodes <= 0).any() or any(_blank(arr, d).any() for d in node_fields):
+        return False
+    if run.name == "CTETRA" and not (_blank(arr, 6) & _blank(arr, 7)).all():
+        return False  # mid-side nodes: card by card
+    if run.name == "GRID" and not _blank(arr, 6).all():
+        return False  # permanent constraints: card by card
+    line_no = np.arange(run.first, run.stop, dtype=np.int64)
+    if st.rewritable:
+        starts = np.array([8 + 8 * d for d in node_fields], dtype=np.int64)
+        st.refs.add_block(np.repeat(line_no, len(node_fields)), np.tile(starts, m),
+                          np.minimum(np.tile(starts + 8, m), np.repeat(lengths, len(node_fields))),
+                          nodes, run.name, 8)
+    if run.name == "GRID":
+        return _grid_table(st, arr, ids)
+    cell = ELEMENT_CARDS[run.name][2][count]
+    eids, conn = st.elements.setdefault((run.name, cell), ([], []))
+    eids.extend(ids.tolist())
+    conn.append(nodes)
+    return True
+
+
+def _wide(arr: np.ndarray, i: int) -> np.ndarray:
+    a = 8 + 16 * i
+    return np.ascontiguousarray(arr[:, a:a + 16]).view("S16").ravel()
+
+
+def _large_grid_table(st: _State, arr: np.ndarray, lengths: np.ndarray, run: Run) -> bool:
+    """GRID* cards (two lines each: ID CP X1 X2, then X3 CD PS SEID) as a table."""
+    first, second = arr[0::2], arr[1::2]
+    blank = [lambda a, i=i: (a[:, 8 + 16 * i:24 + 16 * i] == 32).all(axis=1) for i in range(4)]
+    if (~blank[2](second)).any():
+        return False  # permanent constraints: card by card
+    try:
+        ids = _wide(first, 0).astype(np.int64)
+        values = [_wide(first, 2), _wide(first, 3), _wide(second, 0)]
+        xyz = np.column_stack([v.astype(np.float64) for v in values])
+    except ValueError:
+        return False
+    if (ids <= 0).any():
+        return False
+    if (~blank[1](first)).any() and (np.char.strip(_wide(first, 1)[~blank[1](first)]) != b"0").any():
+        st.notes.append("some GRID coordinates are in a local system; taken as written")
+    if st.rewritable:
+        rows = np.arange(run.first, run.stop, 2, dtype=np.int64)
+        st.refs.add_block(rows, np.full(ids.size, 8), np.minimum(24, lengths[0::2]), ids,
+                          "GRID", 16)
+    st.node_ids.extend(ids.tolist())
+    st.coords.append(xyz)
+    return True
+
+
+def _grid_table(st: _State, arr: np.ndarray, ids: np.ndarray) -> bool:
+    xyz = np.zeros((ids.size, 3))
+    for c, d in enumerate((2, 3, 4)):
+        text = _field_text(arr, d)
+        blank = _blank(arr, d)
+        try:
+            xyz[~blank, c] = text[~blank].astype(np.float64)
+        except ValueError:  # exponents without E (1.5-3): the format's own reals
+            try:
+                xyz[~blank, c] = [bulk_real(t.decode()) for t in text[~blank]]
+            except ValueError:
+                raise MeshReadError(f"{st.path}: a GRID coordinate is not a number") from None
+    system = _field_text(arr, 1)
+    if (~_blank(arr, 1)).any() and (np.char.strip(system[~_blank(arr, 1)]) != b"0").any():
+        st.notes.append("some GRID coordinates are in a local system; taken as written")
+    st.node_ids.extend(ids.tolist())
+    st.coords.append(xyz)
+    return True
+
+
 def _card(st: _State, card: Card) -> None:
     name = card.name
     if name == "GRID":
@@ -459,6 +631,21 @@ def _card(st: _State, card: Card) -> None:
         st.skip(name)
 
 
+def _cards(st: _State, cards: list[Card | Run], lines: list[str]) -> None:
+    """Every card in file order; a run that is not uniform is read card by card."""
+    for card in cards:
+        if isinstance(card, Run):
+            if not _run(st, lines, card):
+                sub, _, _ = bulk_cards(lines[card.first:card.stop], st.path, fast=False)
+                for one in sub:
+                    shifted = Card(one.name, [None if f is None else Field(
+                        f.text, f.line + card.first, f.start, f.end, f.width) for f in one.fields],
+                        one.line + card.first, [k + card.first for k in one.lines])
+                    _card(st, shifted)
+            continue
+        _card(st, card)
+
+
 def _read_text(path: Path) -> str:
     try:
         raw = path.read_bytes()
@@ -493,8 +680,7 @@ def parse_bulk_deck(text: str, source: str = "deck", folder: Path | None = None)
     st = _State(source)
     cards, include_lines, notes = bulk_cards(lines, source)
     st.notes.extend(notes)
-    for card in cards:
-        _card(st, card)
+    _cards(st, cards, lines)
     for k in include_lines:
         _read_include(st, lines[k], k, folder or Path("."))
     defined = set(st.node_ids)
@@ -515,10 +701,10 @@ def parse_bulk_deck(text: str, source: str = "deck", folder: Path | None = None)
     if (counts > 1).any():
         raise MeshReadError(f"{source}: GRID {int(uniq[counts > 1][0])} is defined twice")
     elements = [DeckElements(name, cell, np.asarray(eids, dtype=np.int64),
-                             np.asarray(conn, dtype=np.int64))
+                             np.concatenate(conn).astype(np.int64, copy=False))
                 for (name, cell), (eids, conn) in st.elements.items()]
     return Deck(path=source, kind="bulk", lines=lines, node_ids=ids,
-                points=np.asarray(st.coords, dtype=np.float64).reshape(-1, 3),
+                points=np.concatenate(st.coords).reshape(-1, 3),
                 elements=elements,
                 node_sets={k: np.asarray(v, dtype=np.int64) for k, v in st.node_sets.items()},
                 supports=st.supports, links=st.links, loads=st.loads, refs=st.refs,
@@ -552,6 +738,5 @@ def _read_include(st: _State, line: str, k: int, folder: Path) -> None:
     if nested:
         raise MeshReadError(f"{target}: nested include files are not supported")
     st.rewritable = False
-    for card in cards:
-        _card(st, card)
+    _cards(st, cards, sub)
     st.rewritable = True

@@ -75,14 +75,13 @@ def renumber_deck(deck: Deck, new_id_of_old_id: Mapping[int, int]) -> DeckRewrit
     for a, b in zip(np.concatenate([[0], cuts]).tolist(), np.concatenate([cuts, [line.size]]).tolist()):
         k = int(line[a])
         text = lines[k]
-        for r in range(a, b):
-            s, e, w = int(start[r]), int(end[r]), int(width[r])
-            digits = str(int(new_ids[r]))
+        for s, e, w, new, c in zip(start[a:b].tolist(), end[a:b].tolist(), width[a:b].tolist(),
+                                   new_ids[a:b].tolist(), card[a:b].tolist()):
+            digits = str(new)
             if not w and len(digits) == e - s:  # the common case: same width, free format
                 text = text[:s] + digits + text[e:]
                 continue
-            ref = NodeRef(k, s, e, 0, deck.refs.cards[int(card[r])], w)
-            text = _replaced(text, ref, int(new_ids[r]), deck.path)
+            text = _replaced(text, NodeRef(k, s, e, 0, deck.refs.cards[c], w), new, deck.path)
         if text != lines[k]:
             lines[k] = text
             changed[k] = deck.refs.cards[int(card[a])]
