@@ -209,6 +209,7 @@ def _gmsh_counts(data: Any) -> HeaderCounts | None:
     four, binary = fields[0].startswith(b"4"), fields[1] == b"1"
     size_t = "<Q" if fields[2] == b"8" else "<I"
     counts = []
+    consistent = True
     for name in (b"$Nodes", b"$Elements"):
         pos = data.find(name + b"\n")
         if pos < 0:
@@ -219,17 +220,25 @@ def _gmsh_counts(data: Any) -> HeaderCounts | None:
         pos = data.find(b"\n", pos) + 1
         if four and binary:
             width = struct.calcsize(size_t)
-            raw = bytes(data[pos:pos + 2 * width])
-            if len(raw) < 2 * width:
+            raw = bytes(data[pos:pos + 4 * width])
+            if len(raw) < 4 * width:
                 return None
-            counts.append(struct.unpack(size_t, raw[width:])[0])
+            head4 = list(struct.unpack("<" + size_t[1] * 4, raw))
         else:
             line = bytes(data[pos:data.find(b"\n", pos)]).split()
-            if not line or not all(t.isdigit() for t in line[:2]):
+            if not line or not all(t.isdigit() for t in line[:4]):
                 return None
-            counts.append(int(line[1] if four and len(line) > 1 else line[0]))
+            head4 = [int(t) for t in line[:4]]
+        if four and len(head4) == 4:
+            blocks, count, low, high = head4
+            # blocks, then count tags from low to high: none of these can disagree
+            consistent &= not (count and (blocks == 0 or low < 1 or high < low
+                                          or high - low + 1 < count))
+            counts.append(count)
+        else:  # gmsh 2.2 (the count alone), or 4.0 (blocks, count)
+            counts.append(head4[1] if four and len(head4) > 1 else head4[0])
     node_bytes, cell_bytes = _GMSH_MIN_BYTES[binary]
-    plausible = counts[0] * node_bytes + counts[1] * cell_bytes <= len(data)
+    plausible = consistent and counts[0] * node_bytes + counts[1] * cell_bytes <= len(data)
     return HeaderCounts(counts[0], counts[1], plausible)
 
 
@@ -238,8 +247,9 @@ def header_counts(path: str | os.PathLike[str]) -> HeaderCounts | None:
 
     gmsh 2.2 and 4.x, text or binary (the counts after ``$Nodes`` and
     ``$Elements``), and VTU (its ``Piece`` element).  Other formats: None.
-    A gmsh file announcing more nodes and elements than its size can hold
-    is marked not plausible.
+    A gmsh file announcing more nodes and elements than its size can hold,
+    or (4.x) counts its entity blocks and tag range contradict, is marked
+    not plausible.
     """
     try:
         with open(path, "rb") as fh:
@@ -275,9 +285,9 @@ def check_file_fits(path: str | os.PathLike[str], available: int | None = None) 
     if counts is None:
         return
     if not counts.plausible:
-        raise MeshReadError(f"{path}: the file announces {counts.nodes:,} nodes and "
-                            f"{counts.cells:,} elements, more than its "
-                            f"{Path(path).stat().st_size:,} bytes can hold: it is cut short or "
-                            "damaged")
+        raise MeshReadError(f"{path}: the header's counts ({counts.nodes:,} nodes, "
+                            f"{counts.cells:,} elements) contradict its entity blocks or tag "
+                            f"range, or exceed what {Path(path).stat().st_size:,} bytes can "
+                            "hold: the file is cut short or damaged")
     n, cells = counts.nodes, counts.cells
     check_fits(estimate_bytes(n, {"unknown": cells or n}), available, what=str(path))

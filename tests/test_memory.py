@@ -108,7 +108,24 @@ def test_announced_counts_beyond_the_file_size_are_refused(tmp_path):
     write_model(tet_grid(4, 4, 4), path, "gmsh22")
     data = path.read_bytes().replace(b"$Nodes\n64\n", b"$Nodes\n64000000\n")
     path.write_bytes(data)
-    with pytest.raises(MeshReadError, match="announces 64,000,000 nodes"):
+    with pytest.raises(MeshReadError, match="64,000,000 nodes"):
+        read_model(path)
+
+
+def test_gmsh41_counts_contradicting_their_blocks_are_refused(tmp_path):
+    """A 4.1 header with no entity block but nodes to come: meshio would return garbage."""
+    import meshio
+
+    from bandwise.meshio_io import to_meshio
+
+    path = tmp_path / "box.msh"
+    mesh = to_meshio(tet_grid(3, 3, 3))
+    mesh.cell_data = {"gmsh:physical": [[1] * 48], "gmsh:geometrical": [[1] * 48]}
+    meshio.gmsh.write(path, mesh, fmt_version="4.1", binary=False)
+    text = path.read_text()
+    head = text.split("$Nodes\n")[1].split("\n")[0]
+    path.write_text(text.replace("$Nodes\n" + head, "$Nodes\n0 " + head.split(" ", 1)[1]))
+    with pytest.raises(MeshReadError, match="contradict"):
         read_model(path)
 
 
