@@ -183,7 +183,12 @@ def dof_layout(model: Model, dofs_per_node: int | None = None,
     masks = np.zeros(n, dtype=np.int64)
     used: dict[int, int] = {}
     tags = 0
+    highest = max(dim for dim, _ in blocks) if blocks else 0
     for dim, data in blocks:
+        if dim == highest:  # cells of the highest dimension always carry stiffness
+            masks[_nodes_of(data, n)] |= family_mask[dim]
+            used[dim] = used.get(dim, 0) + len(data)
+            continue
         # A cell lying wholly on nodes of higher-dimensional cells is a boundary
         # or tag cell (a gmsh physical surface on a solid): it adds no DOFs.
         structural = (top[data] == dim).any(axis=1)

@@ -70,6 +70,42 @@ class NodeGraph:
         return f"NodeGraph({self.n} nodes, {self.n_edges} edges)"
 
 
+def component_labels(graph: NodeGraph) -> tuple[int, NDArray[np.int64]]:
+    """Connected components of the graph: (count, label of every vertex).
+
+    Labels are numbered in order of each component's lowest vertex, so the
+    result does not depend on anything but the graph.  A breadth-first sweep
+    over the CSR arrays: O(n + nnz) time, no conversion of the matrix.
+    """
+    labels = _component_labels(graph.indptr, graph.indices)
+    return (int(labels.max()) + 1 if labels.size else 0), labels
+
+
+@numba.njit(cache=True, nogil=True)
+def _component_labels(indptr, indices):  # pragma: no cover - compiled
+    n = indptr.size - 1
+    labels = np.full(n, -1, dtype=np.int64)
+    queue = np.empty(n, dtype=np.int64)
+    count = 0
+    for s in range(n):
+        if labels[s] >= 0:
+            continue
+        labels[s] = count
+        head, tail = 0, 1
+        queue[0] = s
+        while head < tail:
+            v = queue[head]
+            head += 1
+            for t in range(indptr[v], indptr[v + 1]):
+                u = indices[t]
+                if labels[u] < 0:
+                    labels[u] = count
+                    queue[tail] = u
+                    tail += 1
+        count += 1
+    return labels
+
+
 def graph_from_matrix(matrix: sp.spmatrix) -> NodeGraph:
     """The graph of a square sparse matrix pattern: vertex i is row i.
 
@@ -114,32 +150,39 @@ def graph_from_cells(blocks: list[NDArray[np.integer]], n: int) -> NodeGraph:
     idx_t = _index_dtype(n)
     if not blocks:
         return NodeGraph(np.zeros(n + 1, dtype=np.int64), np.zeros(0, dtype=idx_t))
-    typed = numba.typed.List()
-    for b in _grouped_by_width(blocks):
-        typed.append(b)
-    order = _visit_order(typed, n)
-    inc_ptr, inc_blk, inc_row = _incidence(typed, order)
+    cells = padded_cells(blocks)
+    order = _visit_order(cells, n)
+    inc_ptr, inc_row = _incidence(cells, order)
     bounds = _chunks(n)
-    counts = _count_neighbours(typed, order, inc_ptr, inc_blk, inc_row, bounds)
+    counts = _count_neighbours(cells, order, inc_ptr, inc_row, bounds)
     indptr = np.zeros(n + 1, dtype=np.int64)
     np.cumsum(counts, out=indptr[1:])
     indices = np.empty(int(indptr[-1]), dtype=idx_t)
-    _fill_neighbours(typed, order, inc_ptr, inc_blk, inc_row, indptr, indices, bounds)
+    _fill_neighbours(cells, order, inc_ptr, inc_row, indptr, indices, bounds)
     return NodeGraph(indptr, indices)
 
 
-def _grouped_by_width(blocks: list[NDArray[np.integer]]) -> list[NDArray[np.int64]]:
-    """One contiguous int64 array per number of nodes per cell (few kernel blocks)."""
-    by_width: dict[int, list[NDArray[np.integer]]] = {}
+def padded_cells(blocks: list[NDArray[np.integer]]) -> NDArray[np.int64]:
+    """All cells in one ``(m, k_max)`` int64 array, short rows padded with -1.
+
+    A single block is used as it is (no copy when it is already contiguous
+    int64), which is the common case of a large mesh; the kernels then read
+    one plain 2D array in their inner loops.
+    """
+    if len(blocks) == 1:
+        return np.ascontiguousarray(blocks[0], dtype=np.int64)
+    width = max(int(b.shape[1]) for b in blocks)
+    out = np.full((sum(len(b) for b in blocks), width), -1, dtype=np.int64)
+    row = 0
     for b in blocks:
-        by_width.setdefault(int(b.shape[1]), []).append(b)
-    return [np.ascontiguousarray(np.concatenate(g) if len(g) > 1 else g[0], dtype=np.int64)
-            for g in by_width.values()]
+        out[row:row + len(b), :b.shape[1]] = b
+        row += len(b)
+    return out
 
 
 @numba.njit(cache=True, nogil=True)
-def _visit_order(blocks, n):  # pragma: no cover - compiled
-    """Nodes in order of first appearance in the cell lists, unused nodes last.
+def _visit_order(cells, n):  # pragma: no cover - compiled
+    """Nodes in order of first appearance in the cell list, unused nodes last.
 
     Visiting nodes in this order keeps the cells of consecutive nodes close
     in memory whatever the node numbering (meshers write cells in a spatially
@@ -149,15 +192,13 @@ def _visit_order(blocks, n):  # pragma: no cover - compiled
     order = np.empty(n, dtype=np.int64)
     seen = np.zeros(n, dtype=np.bool_)
     k = 0
-    for b in range(len(blocks)):
-        data = blocks[b]
-        for e in range(data.shape[0]):
-            for a in range(data.shape[1]):
-                v = data[e, a]
-                if not seen[v]:
-                    seen[v] = True
-                    order[k] = v
-                    k += 1
+    for e in range(cells.shape[0]):
+        for a in range(cells.shape[1]):
+            v = cells[e, a]
+            if v >= 0 and not seen[v]:
+                seen[v] = True
+                order[k] = v
+                k += 1
     for v in range(n):
         if not seen[v]:
             order[k] = v
@@ -165,33 +206,41 @@ def _visit_order(blocks, n):  # pragma: no cover - compiled
     return order
 
 
+def _incidence(cells: NDArray[np.int64], order: NDArray[np.int64]) -> tuple[NDArray[np.int64], ...]:
+    """Node-to-cell incidence as CSR over visit ranks: the cells of each node."""
+    ptr, rank = _incidence_pointers(cells, order)
+    row = np.empty(int(ptr[-1]), dtype=_index_dtype(cells.shape[0]))
+    _incidence_fill(cells, rank, ptr, row)
+    return ptr, row
+
+
 @numba.njit(cache=True, nogil=True)
-def _incidence(blocks, order):  # pragma: no cover - compiled
-    """Node-to-cell incidence as CSR over visit ranks: (block, row) pairs per node."""
+def _incidence_pointers(cells, order):  # pragma: no cover - compiled
     n = order.size
     rank = np.empty(n, dtype=np.int64)
     for r in range(n):
         rank[order[r]] = r
     ptr = np.zeros(n + 1, dtype=np.int64)
-    for b in range(len(blocks)):
-        data = blocks[b]
-        for e in range(data.shape[0]):
-            for a in range(data.shape[1]):
-                ptr[rank[data[e, a]] + 1] += 1
+    for e in range(cells.shape[0]):
+        for a in range(cells.shape[1]):
+            v = cells[e, a]
+            if v >= 0:
+                ptr[rank[v] + 1] += 1
     for r in range(n):
         ptr[r + 1] += ptr[r]
+    return ptr, rank
+
+
+@numba.njit(cache=True, nogil=True)
+def _incidence_fill(cells, rank, ptr, row):  # pragma: no cover - compiled
     fill = ptr[:-1].copy()
-    blk = np.empty(ptr[n], dtype=np.int16)
-    row = np.empty(ptr[n], dtype=np.int32)
-    for b in range(len(blocks)):
-        data = blocks[b]
-        for e in range(data.shape[0]):
-            for a in range(data.shape[1]):
-                r = rank[data[e, a]]
-                blk[fill[r]] = b
+    for e in range(cells.shape[0]):
+        for a in range(cells.shape[1]):
+            v = cells[e, a]
+            if v >= 0:
+                r = rank[v]
                 row[fill[r]] = e
                 fill[r] += 1
-    return ptr, blk, row
 
 
 def _chunks(n: int) -> NDArray[np.int64]:
@@ -201,10 +250,11 @@ def _chunks(n: int) -> NDArray[np.int64]:
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
-def _count_neighbours(blocks, order, ptr, blk, row, bounds):  # pragma: no cover - compiled
+def _count_neighbours(cells, order, ptr, row, bounds):  # pragma: no cover - compiled
     """Number of distinct neighbours of every node (a marker array per thread)."""
     n = ptr.size - 1
     counts = np.zeros(n, dtype=np.int64)
+    width = cells.shape[1]
     for c in numba.prange(bounds.size - 1):
         mark = np.full(n, -1, dtype=np.int32)
         for r in range(bounds[c], bounds[c + 1]):
@@ -212,11 +262,10 @@ def _count_neighbours(blocks, order, ptr, blk, row, bounds):  # pragma: no cover
             mark[v] = v
             k = 0
             for t in range(ptr[r], ptr[r + 1]):
-                data = blocks[blk[t]]
                 e = row[t]
-                for a in range(data.shape[1]):
-                    u = data[e, a]
-                    if mark[u] != v:
+                for a in range(width):
+                    u = cells[e, a]
+                    if u >= 0 and mark[u] != v:
                         mark[u] = v
                         k += 1
             counts[v] = k
@@ -224,9 +273,10 @@ def _count_neighbours(blocks, order, ptr, blk, row, bounds):  # pragma: no cover
 
 
 @numba.njit(cache=True, nogil=True, parallel=True)
-def _fill_neighbours(blocks, order, ptr, blk, row, indptr, indices, bounds):  # pragma: no cover
+def _fill_neighbours(cells, order, ptr, row, indptr, indices, bounds):  # pragma: no cover
     """Write the sorted distinct neighbours of every node into ``indices``."""
     n = indptr.size - 1
+    width = cells.shape[1]
     for c in numba.prange(bounds.size - 1):
         mark = np.full(n, -1, dtype=np.int32)
         for r in range(bounds[c], bounds[c + 1]):
@@ -235,11 +285,10 @@ def _fill_neighbours(blocks, order, ptr, blk, row, indptr, indices, bounds):  # 
             start = indptr[v]
             k = start
             for t in range(ptr[r], ptr[r + 1]):
-                data = blocks[blk[t]]
                 e = row[t]
-                for a in range(data.shape[1]):
-                    u = data[e, a]
-                    if mark[u] != v:
+                for a in range(width):
+                    u = cells[e, a]
+                    if u >= 0 and mark[u] != v:
                         mark[u] = v
                         # insertion into the sorted run indices[start:k]
                         j = k

@@ -11,10 +11,9 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy.sparse.csgraph import connected_components
 
 from .dofs import DofLayout, dof_layout
-from .graph import NodeGraph, node_graph
+from .graph import NodeGraph, component_labels, node_graph
 from .meshio_io import skipped_blocks
 from .metrics import Metrics, metrics
 from .model import Model
@@ -89,7 +88,7 @@ def count_parts(graph: NodeGraph) -> tuple[int, int]:
     isolated = int(np.count_nonzero(deg == 0))
     if graph.n == 0:
         return 0, 0
-    n_comp, _ = connected_components(graph.to_scipy(), directed=False)
+    n_comp, _ = component_labels(graph)
     return int(n_comp) - isolated, isolated
 
 

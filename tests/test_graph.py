@@ -97,3 +97,22 @@ def test_matrix_pattern_graph_keeps_explicit_zeros():
     g = graph_from_matrix(a)
     assert list(g.neighbours(0)) == [2] and list(g.neighbours(2)) == [0]
     assert g.degrees()[1] == 0
+
+
+@given(seed=st.integers(0, 10_000), keep=st.floats(0.05, 0.6))
+def test_component_labels_match_scipy(seed, keep):
+    # Reference library: scipy.sparse.csgraph.connected_components.
+    from scipy.sparse.csgraph import connected_components
+
+    from bandwise.graph import component_labels
+
+    rng = np.random.default_rng(seed)
+    model = tet_grid(4, 4, 3)
+    tets = model.cells[0].data
+    graph = graph_from_cells([tets[rng.random(len(tets)) < keep]], model.n_nodes)
+    count, labels = component_labels(graph)
+    ref_count, ref = connected_components(graph.to_scipy(), directed=False)
+    assert count == ref_count
+    # same partition: the label pairs correspond one to one
+    pairs = set(zip(labels.tolist(), ref.tolist()))
+    assert len(pairs) == count
