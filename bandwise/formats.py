@@ -16,6 +16,7 @@ for ``abaqus`` and ``nastran`` below describe writing through meshio.
 from __future__ import annotations
 
 import dataclasses
+import os
 from dataclasses import dataclass
 from typing import Any
 
@@ -276,3 +277,29 @@ def sets_from_fields(model: Model) -> Model:
         model.cell_sets[name[len(CELL_SET_FIELD):]] = [
             np.flatnonzero(np.asarray(f).ravel()).astype(np.int64) for f in flags]
     return model
+
+
+def output_format(model: Model, path: str | os.PathLike[str], file_format: str | None = None) -> str:
+    """The meshio format :func:`bandwise.meshio_io.write_model` will use for ``path``.
+
+    Raises
+    ------
+    MeshWriteError
+        The extension names no format meshio writes.
+    """
+    from .errors import MeshReadError, MeshWriteError
+    from .meshio_io import detect_format
+
+    if file_format is not None:
+        return file_format
+    try:
+        fmt = detect_format(path)
+    except MeshReadError as exc:
+        raise MeshWriteError(str(exc)) from None
+    return "gmsh22" if fmt == "gmsh" and model.file_format == "gmsh22" else fmt
+
+
+def losses_for_output(model: Model, path: str | os.PathLike[str],
+                      file_format: str | None = None) -> list[str]:
+    """What writing ``model`` to ``path`` will lose (see :func:`losses`)."""
+    return losses(model, output_format(model, path, file_format))

@@ -178,3 +178,15 @@ def test_deck_path_round_trip(tmp_path):
         again = read_model(out)
         for a, b in zip(again.cells, model.cells):
             np.testing.assert_allclose(again.points[a.data], model.points[b.data])
+
+
+def test_losses_for_output_follow_the_writer_choice():
+    """A gmsh 2.2 source written to .msh stays gmsh 2.2 (write_model's rule), and says so."""
+    from bandwise.formats import losses_for_output, output_format
+
+    model = rich_model()
+    assert output_format(model, "out.xdmf") == "xdmf"
+    model.file_format = "gmsh22"
+    assert output_format(model, "out.msh") == "gmsh22"
+    assert losses_for_output(model, "out.msh") == losses(model, "gmsh22")
+    assert output_format(model, "out.msh", "vtu") == "vtu"
