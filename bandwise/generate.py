@@ -88,4 +88,4 @@ def scrambled(model: Model, seed: int = 0) -> Model:
 
 def nodes_for_tet_box(target_nodes: int) -> int:
     """Nodes per edge of a cubic tet box with about ``target_nodes`` nodes."""
-    return max(2, int(round(target_nodes ** (1 / 3))))
+    return max(2, round(target_nodes ** (1 / 3)))

@@ -181,7 +181,7 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
         raise MeshReadError(f"{path}: cannot read as {fmt}: {_one_line(exc)}") from None
     except MemoryError:
         raise MeshReadError(f"{path}: not enough memory to read the file") from None
-    except Exception as exc:  # meshio readers raise arbitrary types on malformed files
+    except Exception as exc:  # noqa: BLE001  meshio readers raise any type on malformed files
         raise MeshReadError(f"{path}: cannot read as {fmt}: {_one_line(exc)}") from None
     model = model_from_meshio(mesh, source=str(path), file_format=fmt)
     if fmt == "gmsh" and _gmsh_version(path) == "2.2":
@@ -201,34 +201,47 @@ _TAG_SPREAD = 100
 
 @contextlib.contextmanager
 def _gmsh41_node_tags(store: dict[str, np.ndarray]):
-    """Keep the node tags meshio's gmsh 4.1 reader reads and then drops.
+    """Keep the node tags meshio's gmsh 4.1 reader reads and then drops; check both readers' tags.
 
     That reader returns the nodes in file order, grouped by geometrical
     entity, while a file's node numbering is its node tags (meshio's own
     writer gives tag = index + 1 but writes the nodes entity by entity).
+    Both gmsh readers next allocate an array as long as the largest tag: a
+    damaged tag (a billion) is refused here, before that.
     """
     try:
-        from meshio.gmsh import _gmsh41
-        original = _gmsh41._read_nodes
+        from meshio.gmsh import _gmsh22, _gmsh41
+        originals = (_gmsh41._read_nodes, _gmsh22._read_nodes)
     except (ImportError, AttributeError):  # another meshio layout: file order is kept
         yield
         return
 
-    def reading(*args: Any, **kwargs: Any) -> Any:
-        points, tags, dim_tags = original(*args, **kwargs)
-        top = int(tags.max(initial=-1)) + 1
-        if top > max(_TAG_SPREAD * len(tags), 10**7) or int(tags.min(initial=0)) < 0:
-            # the reader would next allocate (and fill) an array as long as the largest tag
-            raise ValueError(f"node tag {top if top > 0 else int(tags.min()) + 1} is out of "
-                             f"range for a file of {len(tags)} nodes")
+    def reading41(*args: Any, **kwargs: Any) -> Any:
+        points, tags, dim_tags = originals[0](*args, **kwargs)
+        _check_node_tags(np.asarray(tags) + 1)
         store["tags"] = np.array(tags)
         return points, tags, dim_tags
 
-    _gmsh41._read_nodes = reading
+    def reading22(*args: Any, **kwargs: Any) -> Any:
+        points, tags = originals[1](*args, **kwargs)
+        _check_node_tags(np.asarray(tags))
+        return points, tags
+
+    _gmsh41._read_nodes, _gmsh22._read_nodes = reading41, reading22
     try:
         yield
     finally:
-        _gmsh41._read_nodes = original
+        _gmsh41._read_nodes, _gmsh22._read_nodes = originals
+
+
+def _check_node_tags(tags: np.ndarray) -> None:
+    """Refuse 1-based node tags below 1 or far beyond the node count."""
+    if tags.size == 0:
+        return
+    top, low = float(tags.max()), float(tags.min())
+    if low < 1 or top > max(_TAG_SPREAD * tags.size, 10**7):
+        bad = low if low < 1 else top
+        raise ValueError(f"node tag {bad:.0f} is out of range for a file of {tags.size} nodes")
 
 
 def _in_tag_order(model: Model, tags: np.ndarray | None) -> Model:
@@ -254,9 +267,9 @@ def model_from_meshio(mesh: Any, source: str = "", file_format: str = "") -> Mod
         data = block.data
         if isinstance(data, np.ndarray) and data.ndim == 2:
             arr = np.asarray(data)
-            if not np.issubdtype(arr.dtype, np.integer):
-                if not np.all(np.isfinite(arr)) or np.any(arr != np.round(arr)):
-                    raise MeshReadError(f"{source}: {block.type} connectivity is not integer")
+            if not np.issubdtype(arr.dtype, np.integer) and (
+                    not np.all(np.isfinite(arr)) or np.any(arr != np.round(arr))):
+                raise MeshReadError(f"{source}: {block.type} connectivity is not integer")
             blocks.append(CellBlock(block.type, arr.astype(np.int64, copy=False)))
         else:  # ragged (polyhedron ...): kept to be written back, not analysed
             ragged = np.empty(len(data), dtype=object)
@@ -400,6 +413,6 @@ def write_model(model: Model, path: str | os.PathLike[str], file_format: str | N
                 meshio.write(tmp / path.name, mesh, file_format=file_format)
         except MeshWriteError:
             raise
-        except Exception as exc:  # meshio writers raise arbitrary types
+        except Exception as exc:  # noqa: BLE001  meshio writers raise any type
             raise MeshWriteError(f"{path}: cannot write as {file_format}: {_one_line(exc)}") from None
     return file_format

@@ -93,8 +93,7 @@ def _first_columns(indptr, indices, pos):  # pragma: no cover - compiled
         m = pos[v]
         for t in range(indptr[v], indptr[v + 1]):
             p = pos[indices[t]]
-            if p < m:
-                m = p
+            m = min(m, p)
         f[v] = m
     return f
 

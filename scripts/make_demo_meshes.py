@@ -13,6 +13,7 @@ Rerun with ``python scripts/make_demo_meshes.py``; the output is deterministic.
 
 from __future__ import annotations
 
+import itertools
 import sys
 from pathlib import Path
 
@@ -21,9 +22,9 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from bandwise.generate import _KUHN, _oriented, hex_grid, scrambled, triangle_grid  # noqa: E402
-from bandwise.meshio_io import write_model  # noqa: E402
-from bandwise.model import CellBlock, Model  # noqa: E402
+from bandwise.generate import _KUHN, _oriented, hex_grid, scrambled, triangle_grid
+from bandwise.meshio_io import write_model
+from bandwise.model import CellBlock, Model
 
 MM = 1.0  # coordinates in millimetres
 
@@ -108,7 +109,7 @@ def frame() -> Model:
             points.append(joints[a] + t * (joints[b] - joints[a]))
             chain.append(len(points) - 1)
         chain.append(b)
-        lines.extend(zip(chain[:-1], chain[1:]))
+        lines.extend(itertools.pairwise(chain))
     points = np.array(points)
     bases = np.flatnonzero(np.isclose(points[:, 2], 0.0))
     return Model(points=points, cells=[CellBlock("line", np.array(lines, dtype=np.int64))],

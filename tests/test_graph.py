@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import scipy.sparse as sp
+from conftest import MESHES, shared_path
 from hypothesis import given
 from hypothesis import strategies as st
 
@@ -18,8 +19,6 @@ from bandwise.generate import hex_grid, tet_grid
 from bandwise.graph import graph_from_cells, graph_from_matrix, node_graph
 from bandwise.meshio_io import read_model
 from bandwise.model import CellBlock, Model
-
-from conftest import MESHES, shared_path
 
 
 def reference_adjacency(blocks, n):

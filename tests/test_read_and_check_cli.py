@@ -11,11 +11,10 @@ import json
 
 import numpy as np
 import pytest
+from conftest import MESHES
 
 from bandwise.meshio_io import read_model
 from bandwise.model import CellBlock, Model
-
-from conftest import MESHES
 
 
 def sha(path):
@@ -59,9 +58,10 @@ def test_check_json_on_demo_meshes(runner, cli_app, name):
 
 
 def test_demo_frame_figures_follow_the_space_frame_rule(runner, cli_app):
-    # 12 joints, 16 members split into 4 elements each: 12 + 16*3 = 60 ... plus
-    # the construction in make_demo_meshes.py gives 96 nodes, 6 DOFs each.
-    code, out, _ = run(runner, cli_app, "check", MESHES / "frame.inp", "--json")
+    # 18 joints and 26 members (no ground beams), each split into 4 elements:
+    # 18 + 26*3 = 96 nodes and 104 line elements, 6 DOFs at every node; a
+    # uniform d gives b_dof = d*b + d - 1 (DESIGN notes, from the definition).
+    _, out, _ = run(runner, cli_app, "check", MESHES / "frame.inp", "--json")
     mesh = json.loads(out)["meshes"][0]
     assert mesh["dofs"]["nodes_by_signature"] == {"ux uy uz rx ry rz": 96}
     node, dof = mesh["current_numbering"]["nodes"], mesh["current_numbering"]["dofs"]

@@ -11,7 +11,6 @@ from __future__ import annotations
 import json
 
 import pytest
-
 from conftest import SHARED, shared_path
 
 

@@ -12,12 +12,12 @@ import os
 import sys
 from collections.abc import Callable
 from functools import wraps
-from typing import Annotated, Any, Optional
+from typing import Annotated, Any
 
 import typer
 
 from .. import __version__
-from ..caution import CAUTION
+from ..caution import CAUTION  # noqa: F401  (re-exported to the command modules)
 from ..dofs import PHYSICS
 from ..errors import BandwiseError
 
@@ -84,13 +84,13 @@ def _json_default(obj: Any) -> Any:
     raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
 
 
-FormatOpt = Annotated[Optional[str], typer.Option(
+FormatOpt = Annotated[str | None, typer.Option(
     "--format", help="meshio format name of the input; overrides the extension "
                      "(.msh is read as gmsh unless told otherwise).")]
-DofsOpt = Annotated[Optional[int], typer.Option(
+DofsOpt = Annotated[int | None, typer.Option(
     "--dofs-per-node", min=1, max=64,
     help="DOFs at every node; default: chosen from the element families present.")]
-PhysicsOpt = Annotated[Optional[str], typer.Option(
+PhysicsOpt = Annotated[str | None, typer.Option(
     "--physics", help=f"Field being solved for: {' | '.join(PHYSICS)} "
                       "(scalar = 1 DOF per node, e.g. heat conduction).")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print the results as JSON on stdout.")]
