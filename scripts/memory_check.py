@@ -29,7 +29,13 @@ def _rss() -> int:
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
 
-def measure(path: Path, ordering: str | None) -> dict[str, float]:
+def warm_up(suffix: str, ordering: str | None) -> None:
+    """Compile and cache the kernels in a process of their own (compiling takes memory)."""
+    extra = ["--ordering", ordering] if ordering else []
+    subprocess.run([sys.executable, __file__, "--warm-up", suffix, *extra], check=True)
+
+
+def measure(path: Path | None, ordering: str | None, suffix: str = ".vtu") -> dict[str, float]:
     """Peak growth while reading, building the graph, measuring (and ordering) one mesh."""
     from bandwise.generate import tet_grid
     from bandwise.graph import node_graph
@@ -40,8 +46,8 @@ def measure(path: Path, ordering: str | None) -> dict[str, float]:
     from bandwise.summary import count_parts
 
     load_all()
-    with tempfile.TemporaryDirectory() as tmp:  # warm up: imports and compiled kernels
-        warm = Path(tmp) / f"warm{path.suffix}"
+    with tempfile.TemporaryDirectory() as tmp:  # warm up: imports and cached kernels
+        warm = Path(tmp) / f"warm{suffix if path is None else path.suffix}"
         write_model(tet_grid(4, 4, 4), warm)
         small = read_model(warm)
         g = node_graph(small)
@@ -50,6 +56,8 @@ def measure(path: Path, ordering: str | None) -> dict[str, float]:
             ORDERINGS[ordering].func(g)
     del small, g
     gc.collect()
+    if path is None:
+        return {}
     base = _rss()
     tracemalloc.start()
     model = read_model(path)
@@ -71,7 +79,11 @@ def main() -> None:
     parser.add_argument("mesh", nargs="?", type=Path)
     parser.add_argument("--nodes", type=int, help="generate a tetrahedral box of about this many nodes")
     parser.add_argument("--ordering", default=None, help="also run this registered ordering")
+    parser.add_argument("--warm-up", metavar="SUFFIX", help=argparse.SUPPRESS)
     args = parser.parse_args()
+    if args.warm_up:
+        measure(None, args.ordering, args.warm_up)
+        return
     with tempfile.TemporaryDirectory() as tmp:
         path = args.mesh
         if path is None:
@@ -82,6 +94,7 @@ def main() -> None:
                     "from bandwise.meshio_io import write_model;"
                     f"e = k({args.nodes}); write_model(tet_grid(e, e, e), {str(path)!r})")
             subprocess.run([sys.executable, "-c", code], check=True)
+        warm_up(path.suffix, args.ordering)
         r = measure(path, args.ordering)
     mib = 2**20
     print(f"nodes {r['nodes']:,}  estimate {r['estimate'] / mib:.1f} MiB  measured peak growth "
