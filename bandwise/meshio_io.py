@@ -110,11 +110,20 @@ def _check_data_header(data: Any, pos: int, path: Path, section: str) -> None:
             raise MeshReadError(f"{path}: malformed ${section} header: {kind} tag count "
                                 f"{line[:20].decode('ascii', 'replace')!r}")
         pos = end + 1
+        values = []
         for _ in range(int(line)):
             end = data.find(b"\n", pos)
             if end < 0:
                 raise MeshReadError(f"{path}: ${section} header cut short")
+            values.append(bytes(data[pos:end]).strip())
             pos = end + 1
+        # integer tags: time step, components, number of items (each item takes bytes)
+        if kind == "integer" and len(values) >= 3:
+            items = values[2]
+            if not items.isdigit() or int(items) * 4 > len(data):
+                raise MeshReadError(f"{path}: malformed ${section} header: "
+                                    f"{items[:20].decode('ascii', 'replace')!r} items announced "
+                                    f"in a file of {len(data):,} bytes")
 
 
 def _gmsh_version(path: Path) -> str | None:
@@ -328,6 +337,14 @@ def validate_model(model: Model) -> None:
     for name, idx in model.point_sets.items():
         if idx.size and (idx.min() < 0 or idx.max() >= n):
             raise MeshReadError(f"{src}: node set {name!r} refers to a node that does not exist")
+    for name, values in model.point_data.items():
+        if np.shape(values)[:1] != (n,):
+            raise MeshReadError(f"{src}: nodal field {name!r} has {np.shape(values)[:1] or 0} "
+                                f"rows for {n} nodes")
+    for name, arrays in model.cell_data.items():
+        sizes = [len(a) for a in arrays] if len(arrays) == len(model.cells) else None
+        if sizes != [len(b) for b in model.cells]:
+            raise MeshReadError(f"{src}: element field {name!r} does not match the cell blocks")
 
 
 def skipped_blocks(model: Model) -> list[str]:
