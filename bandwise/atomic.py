@@ -61,6 +61,13 @@ def _fsync(path: Path) -> None:
         os.close(fd)
 
 
+def _ordinary_mode() -> int:
+    """The permissions ``open()`` would give a new file: 0666 less the umask."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def write_text_atomic(path: str | os.PathLike[str], text: str) -> None:
     """Write a text file atomically (temporary file in the same folder, then rename)."""
     write_bytes_atomic(path, text.encode("utf-8"))
@@ -79,6 +86,7 @@ def write_bytes_atomic(path: str | os.PathLike[str], data: bytes) -> None:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, _ordinary_mode())  # mkstemp makes 0600; outputs are ordinary files
         os.replace(tmp, path)
     except OSError as exc:
         with contextlib.suppress(OSError):

@@ -157,3 +157,19 @@ def test_python_m_entry_point():
     out = subprocess.run([sys.executable, "-m", "bandwise", "--version"], capture_output=True,
                          text=True, check=True)
     assert out.stdout.startswith("bandwise ")
+
+
+def test_atomic_text_output_gets_ordinary_permissions(tmp_path):
+    # A temporary file is created 0600; the renamed output must look like any
+    # file the user's umask allows (common practice of atomic writers).
+    import os
+
+    from bandwise.atomic import write_text_atomic
+
+    mask = os.umask(0o022)
+    try:
+        write_text_atomic(tmp_path / "map.csv", "a,b\n")
+    finally:
+        os.umask(mask)
+    assert (tmp_path / "map.csv").stat().st_mode & 0o777 == 0o644
+    assert [p.name for p in tmp_path.iterdir()] == ["map.csv"]
