@@ -126,6 +126,17 @@ def _check_data_header(data: Any, pos: int, path: Path, section: str) -> None:
                                     f"in a file of {len(data):,} bytes")
 
 
+def _check_enddata(path: Path) -> None:
+    """Refuse a bulk-data deck without its closing ENDDATA card (meshio would wait forever)."""
+    try:
+        with open(path, "rb") as fh, mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as data:
+            found = re.search(rb"^ENDDATA", data, re.MULTILINE | re.IGNORECASE) is not None
+    except (OSError, ValueError):
+        return
+    if not found:
+        raise MeshReadError(f"{path}: no ENDDATA card: the bulk-data deck is cut short")
+
+
 def _gmsh_version(path: Path) -> str | None:
     """'2.2' or '4.1' read from a gmsh file header, else None."""
     try:
@@ -171,6 +182,8 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
     check_file_fits(path)
     if fmt == "gmsh":
         _check_gmsh_data_headers(path)
+    if fmt == "nastran":
+        _check_enddata(path)
     meshio = _meshio()
     captured = io.StringIO()
     node_tags: dict[str, np.ndarray] = {}

@@ -325,10 +325,19 @@ def main() -> None:
     parser.add_argument("--in-process", action="store_true",
                         help="run the commands in this interpreter, not a fresh one each time")
     parser.add_argument("--verbose", action="store_true", help="name every case as it starts")
+    parser.add_argument("--memory-gb", type=float, default=6.0,
+                        help="address-space limit of an in-process run, so that a case asking "
+                             "for too much memory gets MemoryError instead of the system's "
+                             "out-of-memory killer (6)")
     parser.add_argument("--timeout", type=int, default=TIMEOUT,
                         help=f"seconds a command may take before it counts as a hang ({TIMEOUT})")
     args = parser.parse_args()
     TIMEOUT = args.timeout
+    if args.in_process:
+        import resource
+
+        limit = int(args.memory_gb * 2**30)
+        resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
     runner = in_process_runner() if args.in_process else subprocess_runner
     rng = random.Random(args.seed)
     t0 = time.monotonic()
