@@ -1,7 +1,7 @@
 """Memory estimate before analysis, and refusal of input too large for the machine.
 
-The estimate is checked against a measurement (peak resident size growth,
-``resource.getrusage``; traced numpy allocations, ``tracemalloc``) on a
+The estimate is checked against a measurement (resident size growth sampled
+from ``/proc/self/statm``; traced numpy allocations, ``tracemalloc``) on a
 100,000-node tetrahedral mesh; the header counts against the counts meshio
 reads from the same files.
 """
