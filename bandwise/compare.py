@@ -221,19 +221,37 @@ def _fill_counter() -> Callable[..., int] | None:
     return cholesky_nnz
 
 
-def _resolve_methods(methods: str | Sequence[str], n: int) -> tuple[list[OrderingInfo],
-                                                                     dict[str, str]]:
+#: Above this many nodes ``auto`` tries fill-reducing orderings only for objective fill.
+AUTO_FILL_ORDERINGS_MAX_NODES = 100_000
+
+
+def _auto_skip_reason(info: OrderingInfo, registry: dict[str, OrderingInfo], n: int,
+                      objective: str) -> str | None:
+    """Why ``auto`` leaves an ordering out for this graph and objective (None: try it)."""
+    if info.max_nodes is not None and n > info.max_nodes:
+        return f"graph has {n:,} nodes, more than its limit {info.max_nodes:,}"
+    if info.objective == "fill" and objective != "fill" and n > AUTO_FILL_ORDERINGS_MAX_NODES:
+        return (f"a fill-reducing ordering widens the envelope; on {n:,} nodes it is tried "
+                "for --objective fill, or when named")
+    if info.name == "cm" and "rcm" in registry and objective == "profile":
+        return ("reversing Cuthill-McKee never increases the profile (Liu and Sherman 1976): "
+                "rcm is tried instead")
+    return None
+
+
+def _resolve_methods(methods: str | Sequence[str], n: int,
+                     objective: str = "profile") -> tuple[list[OrderingInfo], dict[str, str]]:
     """The orderings to try, and those ``auto`` skipped (name -> reason)."""
     registry, broken = _registry()
     if isinstance(methods, str):
         if methods == "auto":
             chosen, skipped = [], dict(broken)
             for name in sorted(registry):
-                info = registry[name]
-                if info.max_nodes is not None and n > info.max_nodes:
-                    skipped[name] = f"graph has {n:,} nodes, more than its limit {info.max_nodes:,}"
+                reason = _auto_skip_reason(registry[name], registry, n, objective)
+                if reason is None:
+                    chosen.append(registry[name])
                 else:
-                    chosen.append(info)
+                    skipped[name] = reason
             return chosen, skipped
         methods = [m.strip() for m in methods.split(",") if m.strip()]
     valid = sorted(registry)
@@ -330,7 +348,10 @@ def compare_orderings(graph: NodeGraph, methods: str | Sequence[str] = "auto",
         The node graph, current numbering.
     methods
         ``"auto"`` (every registered ordering whose ``max_nodes`` admits the
-        graph), a comma-separated string, or a list of registered names.
+        graph, except those that cannot win the objective: a fill-reducing
+        ordering for an envelope objective on a large graph, and Cuthill-McKee
+        beside its reverse for the profile), a comma-separated string, or a
+        list of registered names.
         ``original`` is always included, first.
     objective
         One of :data:`OBJECTIVES`; measured at DOF level.
@@ -363,7 +384,7 @@ def compare_orderings(graph: NodeGraph, methods: str | Sequence[str] = "auto",
         raise InputError(f"unknown objective {objective!r}; valid: {', '.join(OBJECTIVES)}")
     if graph.n == 0:
         raise InputError("the graph has no nodes: nothing to number")
-    infos, skipped = _resolve_methods(methods, graph.n)
+    infos, skipped = _resolve_methods(methods, graph.n, objective)
     options = options or {}
     fill, fill_note = _fill_setup(graph.n, objective, fill_max_nodes)
     rows = []
