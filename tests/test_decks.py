@@ -134,12 +134,39 @@ def _block_lines(rw) -> int:
     return 1 + -(-max(0, len(rw.head) - 1 + n - 8) // 8)
 
 
+def _definition_lines(deck) -> set[int]:
+    """Lines of node cards (NODE data lines, GRID cards with their continuation lines)."""
+    found = {r.line for r in deck.refs if r.card in ("NODE", "GRID")}
+    for k in sorted(found):
+        e = k + 1
+        while deck.kind == "bulk" and e < len(deck.lines) and deck.lines[e].strip() \
+                and deck.lines[e][0] in "+*, ":
+            found.add(e)
+            e += 1
+    return found
+
+
+def _without_id(line: str) -> str:
+    """A node card line without its id field (keyword, free, small or large field)."""
+    if line.startswith("GRID*"):
+        return line[:8] + line[24:]
+    if line.startswith("GRID,"):
+        return line.split(",", 2)[2]
+    if line.startswith("GRID"):
+        return line[:8] + line[16:]
+    if line[:1] in "+*" or not line.strip():
+        return line
+    return line.split(",", 1)[1] if "," in line else line
+
+
 def _check_renumbered(deck, text: str, ids: dict[int, int], tmp_path: Path, suffix: str):
     before = deck.lines
     after_lines = text.splitlines(keepends=True)
     first = {rw.lines[0]: rw for rw in deck.list_rewrites}
     rest = {k for rw in deck.list_rewrites for k in rw.lines[1:]}
     spans = _refs_by_line(deck)
+    definitions = _definition_lines(deck)
+    moved_before, moved_after = [], []
     j = 0
     for k, line in enumerate(before):
         if k in rest:
@@ -147,12 +174,16 @@ def _check_renumbered(deck, text: str, ids: dict[int, int], tmp_path: Path, suff
         if k in first:
             j += _block_lines(first[k])
             continue
-        if k in spans:  # only the numbers changed, every other character kept
+        if k in definitions:  # node cards are put in new-id order: compared as a whole below
+            moved_before.append(_without_id(line))
+            moved_after.append(_without_id(after_lines[j]))
+        elif k in spans:  # only the numbers changed, every other character kept
             assert _pattern(line, spans[k]).fullmatch(after_lines[j]), (line, after_lines[j])
         else:           # a line without node ids: byte-identical
             assert after_lines[j] == line
         j += 1
     assert j == len(after_lines)
+    assert sorted(moved_before) == sorted(moved_after)
     out = tmp_path / f"renumbered{suffix}"
     out.write_text(text)
     again = read_deck(out)
@@ -346,9 +377,9 @@ def test_bulk_deck_fields_supports_links_and_rewrite(tmp_path):
     # the SPC1 range is written out as a list (four ids: a range no longer describes them)
     spc1 = next(ln for ln in text.splitlines() if ln.startswith("SPC1"))
     assert sorted(int(v) for v in spc1.split()[3:]) == sorted(ids[i] for i in (1, 2, 3, 4))
-    # small-field lines keep every field at its column
+    # small-field lines keep every field at its column (GRID cards move to new-id order)
     for old, new in zip(BRACKET_BDF.splitlines(), text.splitlines()):
-        if old.startswith(("GRID    ", "CHEXA", "RBE2", "FORCE", "MOMENT", "SPC ")):
+        if old.startswith(("CHEXA", "RBE2", "FORCE", "MOMENT", "SPC ")):
             assert len(new) == len(old)
     _check_renumbered_bulk(deck, text, ids, tmp_path)
 
@@ -416,3 +447,44 @@ def test_include_is_read_but_not_rewritten():
     assert deck.to_model().n_cells > 0
     with pytest.raises(InputError, match="includes geom.inc"):
         renumber_deck(deck, new_ids(deck.node_ids, np.arange(deck.n_nodes)))
+
+
+def test_cli_renumbers_a_deck_in_place(tmp_path, runner, cli_app):
+    """``bandwise renumber deck.bdf out.bdf``: node ids rewritten, every other line kept."""
+    import json
+
+    src = tmp_path / "bracket.bdf"
+    src.write_text(BRACKET_BDF)
+    out = tmp_path / "cli_out.bdf"
+    result = runner.invoke(cli_app, ["renumber", str(src), str(out), "--method", "rcm",
+                                     "--json"])
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert doc["losses"] == [] and "GRID" in doc["deck"]["changed_cards"]
+    assert src.read_text() == BRACKET_BDF           # the input is untouched
+    deck, again = read_deck(src), read_deck(out)
+    for line in ("MAT1    1       2.1+5           .3\n", "PSOLID  10      1\n", "SPC = 1\n"):
+        assert line in out.read_text()
+    # the node map of the run gives the new position; the new id is the position-th
+    # smallest original id (here ids 1..9: the same number)
+    from bandwise.node_map import read_node_map
+
+    new_of_old = read_node_map(doc["node_map"]).new_of_old
+    ids = {int(deck.node_ids[k]): int(new_of_old[k]) + 1 for k in range(deck.n_nodes)}
+    _check_renumbered_bulk(deck, out.read_text(), ids, tmp_path)
+    # the rigid spider couples nodes 5-9 to the block: one part in the ordering's graph
+    assert sorted(again.node_ids.tolist()) == list(range(1, 10))
+
+
+def test_cli_deck_with_unrewritable_cards_fails_cleanly(tmp_path, runner, cli_app):
+    src = tmp_path / "seq.bdf"
+    src.write_text("GRID    1               0.      0.      0.\n"
+                   "GRID    2               1.      0.      0.\n"
+                   "GRID    3               1.      1.      0.\n"
+                   "CTRIA3  1       1       1       2       3\n"
+                   "SEQGP   1       3       3       1\n")
+    out = tmp_path / "out.bdf"
+    result = runner.invoke(cli_app, ["renumber", str(src), str(out), "--method", "rcm"])
+    assert result.exit_code == 2
+    assert "SEQGP" in result.stderr and len(result.stderr.strip().splitlines()) == 1
+    assert not out.exists()

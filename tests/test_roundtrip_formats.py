@@ -190,3 +190,20 @@ def test_losses_for_output_follow_the_writer_choice():
     assert output_format(model, "out.msh") == "gmsh22"
     assert losses_for_output(model, "out.msh") == losses(model, "gmsh22")
     assert output_format(model, "out.msh", "vtu") == "vtu"
+
+
+def test_cli_says_what_the_output_format_loses(tmp_path, runner, cli_app):
+    import json
+
+    src = tmp_path / "bracket.vtu"
+    write_model(rich_model(), src)
+    result = runner.invoke(cli_app, ["renumber", str(src), str(tmp_path / "out.xdmf"),
+                                     "--method", "rcm", "--json"])
+    assert result.exit_code == 0, result.stderr
+    doc = json.loads(result.stdout)
+    assert any(s.startswith("node sets 'WALL', 'LOAD'") for s in doc["losses"])
+    assert any(s.startswith("element sets") for s in doc["losses"])
+    assert "will not keep" in result.stderr          # said before writing
+    text = runner.invoke(cli_app, ["renumber", str(src), str(tmp_path / "out2.xdmf"),
+                                   "--method", "rcm"])
+    assert "not kept by the output format: node sets" in text.stdout

@@ -11,6 +11,7 @@ import typer
 
 from .. import __version__
 from ..errors import InputError
+from ..formats import losses_for_output
 from ..graph import node_graph
 from ..merge import MergeResult, merged_model
 from ..meshio_io import read_model, write_model
@@ -58,6 +59,9 @@ def merge(
     parts_before, _ = count_parts(graph)
     result = merged_model(model, tolerance, relative_tolerance, graph=graph)
     parts_after, _ = count_parts(node_graph(result.model))
+    lost = losses_for_output(result.model, out, output_format)
+    for note in lost:  # said before the file is written
+        typer.echo(f"bandwise: note: {out.name} will not keep {note}", err=True)
     used_format = write_model(result.model, out, output_format)
     labels, kind = model.node_labels()
     if as_json:
@@ -69,7 +73,8 @@ def merge(
                    "parts_after": parts_after, "node_id_kind": kind,
                    "pairs": [[int(labels[k]), int(labels[r])]
                              for k, r in zip(result.kept, result.removed)],
-                   "refused": [int(labels[r]) for r in result.refused]})
+                   "refused": [int(labels[r]) for r in result.refused],
+                   "losses": lost})
     else:
         typer.echo(_report(result, str(source), str(out), used_format, kind, labels,
                            parts_before, parts_after))

@@ -11,8 +11,10 @@ import typer
 
 from .. import __version__
 from ..compare import OBJECTIVES, Comparison, compare_orderings
+from ..decks.files import deck_graph, deck_to_renumber, write_renumbered_deck
 from ..dofs import dof_layout
 from ..errors import InputError, MeshReadError, MeshWriteError
+from ..formats import losses_for_output
 from ..frontal import ElementReordering, frontal_reordering, reordered_elements
 from ..graph import graph_from_matrix, node_graph
 from ..matrix_io import (
@@ -173,13 +175,17 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     """Mesh in, renumbered mesh out (same format unless told otherwise)."""
     if output_format is not None or not _same_extension(source, out):
         _check_writable_format(out, output_format)
+    deck = deck_to_renumber(source, out, file_format, output_format)  # renumbered in place
+    if deck is not None and element_order:
+        raise InputError("--element-order cannot reorder the elements of a deck renumbered in "
+                         "place; give --output-format to write it through meshio")
     with step(progress, "reading the mesh"):
-        model = read_model(source, file_format)
+        model = deck.to_model() if deck is not None else read_model(source, file_format)
     if model.n_nodes < 2:
         raise InputError(f"{source}: the mesh has {model.n_nodes} node: nothing to renumber")
     layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
     with step(progress, "building node graph"):
-        graph = node_graph(model)
+        graph = node_graph(model) if deck is None else deck_graph(deck, model)
     if graph.n_edges == 0:
         raise InputError(f"{source}: no element couples two nodes (only vertex cells?): "
                          "nothing to renumber")
@@ -192,12 +198,22 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
         with step(progress, "ordering elements"):
             front = frontal_reordering(renumbered, layout)
             renumbered = reordered_elements(renumbered, front.order)
+    lost = [] if deck is not None else losses_for_output(renumbered, out, fmt)
+    for note in lost:  # said before the file is written
+        typer.echo(f"bandwise: note: {out.name} will not keep {note}", err=True)
+    rewrite = None
     with step(progress, "writing the mesh"):
-        written = write_model(renumbered, out, fmt)
+        if deck is not None:
+            rewrite = write_renumbered_deck(deck, perm, out)
+            written = f"{deck.kind} deck, node ids rewritten in place"
+        else:
+            written = write_model(renumbered, out, fmt)
     write_node_map(node_map, perm, model.node_ids)
     level = f"DOF level, {layout.total:,} DOFs: {layout.rule}"
     return {"comparison": comp, "level": level, "output_format": written,
-            "n_rows": layout.total, "front": front}
+            "n_rows": layout.total, "front": front, "losses": lost,
+            "deck": None if rewrite is None else {"changed_cards": rewrite.changed_cards,
+                                                  "notes": deck.notes + rewrite.notes}}
 
 
 @app.command()
@@ -264,6 +280,8 @@ def renumber(
             "options": options,
             "comparison": comp.to_dict(),
             "element_order": None if front is None else front.to_dict(),
+            "losses": result.get("losses", []),
+            "deck": result.get("deck"),
         })
         return
     typer.echo(comparison_text(comp, result["level"]))
@@ -275,6 +293,13 @@ def renumber(
     value = best.value(comp.objective) or 0.0
     shown = f"{value:,.1f}" if comp.objective == "wavefront" else f"{int(value):,}"
     typer.echo(f"chosen: {best.method} ({comp.objective} {shown}{gain})")
+    for lost in result.get("losses", []):
+        typer.echo(f"not kept by the output format: {lost}")
+    if result.get("deck"):
+        cards = ", ".join(f"{k} {v}" for k, v in result["deck"]["changed_cards"].items())
+        typer.echo(f"deck lines rewritten (node ids only): {cards}")
+        for note in result["deck"]["notes"]:
+            typer.echo(f"note: {note}")
     typer.echo(f"written: {out} ({result['output_format']})")
     typer.echo(f"node map (old -> new, 1-based): {node_map}")
     typer.echo("")

@@ -703,8 +703,9 @@ def parse_bulk_deck(text: str, source: str = "deck", folder: Path | None = None)
     elements = [DeckElements(name, cell, np.asarray(eids, dtype=np.int64),
                              np.concatenate(conn).astype(np.int64, copy=False))
                 for (name, cell), (eids, conn) in st.elements.items()]
-    return Deck(path=source, kind="bulk", lines=lines, node_ids=ids,
-                points=np.concatenate(st.coords).reshape(-1, 3),
+    by_id = np.argsort(ids, kind="stable")  # a deck numbers its nodes by id, not by place
+    return Deck(path=source, kind="bulk", lines=lines, node_ids=ids[by_id],
+                points=np.concatenate(st.coords).reshape(-1, 3)[by_id],
                 elements=elements,
                 node_sets={k: np.asarray(v, dtype=np.int64) for k, v in st.node_sets.items()},
                 supports=st.supports, links=st.links, loads=st.loads, refs=st.refs,

@@ -180,7 +180,8 @@ class Deck:
     lines
         The text, one string per line, line endings kept.
     node_ids, points
-        Node ids in file order and their coordinates (as written).
+        Node ids in ascending order (the deck's numbering) and their
+        coordinates as written.
     elements
         Element blocks, one per deck element type.
     node_sets
@@ -252,7 +253,8 @@ class Deck:
     def to_model(self) -> Model:
         """The mesh of the deck as a :class:`~bandwise.model.Model`, original ids kept.
 
-        Nodes are in file order, ``node_ids`` holds their deck ids, node sets
+        Nodes are in id order (the numbering a solver sees), ``node_ids`` holds
+        their deck ids, node sets
         become point sets, and each element type becomes a cell block with
         the element ids as the cell field ``element_id``.
 

@@ -95,10 +95,59 @@ def renumber_deck(deck: Deck, new_id_of_old_id: Mapping[int, int]) -> DeckRewrit
         changed[rw.lines[0]] = rw.card
         notes.append(f"{rw.card} at line {rw.lines[0] + 1} gave its nodes as an id range; "
                      f"written out as a list of {len(new)} ids")
+    _in_id_order(lines, deck, new_ids, line, card, changed)
     counts: dict[str, int] = {}
     for card in changed.values():
         counts[card] = counts.get(card, 0) + 1
     return DeckRewrite("".join(lines), dict(sorted(counts.items())), notes)
+
+
+#: Cards whose node field defines the node (its lines move with the new id).
+DEFINITIONS = ("NODE", "GRID")
+
+
+def _is_continuation(text: str) -> bool:
+    return bool(text.strip()) and text[0] in "+*, "
+
+
+def _in_id_order(lines: list[str], deck: Deck, new_ids: np.ndarray, line: np.ndarray,
+                 card: np.ndarray, changed: dict[int, str]) -> None:
+    """Put node definitions in the order of their new ids, run by run, in place.
+
+    A reader that numbers nodes by their place in the file (rather than by
+    id) then sees the new numbering too.  A run is a stretch of node cards
+    with nothing between them (a comment or another card ends it); a card
+    keeps its continuation lines.
+    """
+    codes = [deck.refs.cards.index(c) for c in DEFINITIONS if c in deck.refs.cards]
+    is_def = np.isin(card, codes)
+    if not is_def.any():
+        return
+    starts, keys = line[is_def], new_ids[is_def]
+    order = np.argsort(starts, kind="stable")
+    starts, keys = starts[order].tolist(), keys[order].tolist()
+    records = []
+    for s in starts:
+        e = s + 1
+        while deck.kind == "bulk" and e < len(lines) and _is_continuation(lines[e]):
+            e += 1
+        records.append((s, e))
+    run: list[int] = []
+    for i in range(len(records) + 1):
+        if i < len(records) and (not run or records[run[-1]][1] == records[i][0]):
+            run.append(i)
+            continue
+        if len(run) > 1:
+            first = records[run[0]][0]
+            texts = [lines[a:b] for a, b in (records[j] for j in run)]
+            moved = [texts[j] for j in sorted(range(len(run)), key=lambda j: keys[run[j]])]
+            flat = [t for group in moved for t in group]
+            for k, text in enumerate(flat):
+                if lines[first + k] != text:
+                    lines[first + k] = text
+                    changed[first + k] = deck.refs.cards[int(codes[0])] if len(codes) == 1 \
+                        else changed.get(first + k, "NODE" if deck.kind == "keyword" else "GRID")
+        run = [i] if i < len(records) else []
 
 
 def _check_rewritable(deck: Deck) -> None:
