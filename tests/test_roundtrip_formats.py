@@ -207,3 +207,14 @@ def test_cli_says_what_the_output_format_loses(tmp_path, runner, cli_app):
     text = runner.invoke(cli_app, ["renumber", str(src), str(tmp_path / "out2.xdmf"),
                                    "--method", "rcm"])
     assert "not kept by the output format: node sets" in text.stdout
+
+
+def test_merge_says_what_the_output_format_loses(tmp_path, runner, cli_app):
+    import json
+
+    src = tmp_path / "bracket.vtu"
+    write_model(rich_model(), src)
+    result = runner.invoke(cli_app, ["merge", str(src), str(tmp_path / "merged.xdmf"), "--json"])
+    assert result.exit_code in (0, 1), result.stderr
+    assert any(s.startswith("node sets") for s in json.loads(result.stdout)["losses"])
+    assert "will not keep" in result.stderr
