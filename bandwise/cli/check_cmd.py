@@ -34,6 +34,7 @@ from . import (
     emit_json,
     guarded,
 )
+from .report_cmd import ReportOpt, check_report_option, mesh_report_inputs, write_report_option
 from .support_options import (
     DofMapOpt,
     StiffnessCheckOpt,
@@ -134,6 +135,7 @@ def check(
     supports_file: SupportFileOpt = None,
     stiffness_check: StiffnessCheckOpt = False,
     dof_map: DofMapOpt = None,
+    report_dir: ReportOpt = None,
 ) -> None:
     """Size up and check meshes before a run: parts, orphans, coincident nodes, joints, elements.
 
@@ -141,6 +143,7 @@ def check(
     Exit code 1 when a finding at or above --fail-on is found.
     """
     check_fail_on(fail_on)
+    check_report_option(report_dir)
     if _matrix_check(files, as_json):
         return
     request = support_request(support, supports_file, stiffness_check, dof_map, len(files))
@@ -157,6 +160,9 @@ def check(
         reports.append(analyse_supports(model, layout, graph, request, progress))
         all_findings.append(merged_findings(run_checks(model, graph, options, progress=progress),
                                             reports[-1]))
+        write_report_option(report_dir, mesh_report_inputs(
+            model, layout, graph, results[-1], all_findings[-1], reports[-1], fail_on=fail_on),
+            progress, path, len(files))
     gate_failed = any(failing(f, fail_on) for f in all_findings)
     if as_json:
         docs = [{**r.to_dict(), **rep.to_json(), "verdict": verdict(f, fail_on),

@@ -14,7 +14,7 @@ import typer
 
 from ..checks import run_checks
 from ..checks.findings import Finding
-from ..checks.verdict import check_fail_on
+from ..checks.verdict import FAIL_ON, check_fail_on
 from ..compare import OBJECTIVES, Comparison, compare_orderings
 from ..dofs import DofLayout, dof_layout
 from ..equations import equation_numbering
@@ -28,7 +28,6 @@ from ..report import ReportFiles, ReportInputs, check_report_folder, write_repor
 from ..report.document import PROBLEMS, verdict
 from ..summary import MeshSummary, summarise
 from . import CAUTION, EXIT_FINDINGS, DofsOpt, FormatOpt, PhysicsOpt, app, guarded
-from .check_cmd import FailOnOpt
 from .support_options import (
     SupportFileOpt,
     SupportOpt,
@@ -37,6 +36,11 @@ from .support_options import (
     merged_findings,
     support_request,
 )
+
+#: ``--fail-on`` as ``check`` has it (declared here too: ``check`` imports this module).
+FailOnOpt = Annotated[str, typer.Option(
+    "--fail-on", help=f"Lowest severity that makes the verdict \"problems found\" and the "
+                      f"exit code 1: {' | '.join(FAIL_ON)}.")]
 
 #: The ``--report DIR`` option other commands add to their signature.
 ReportOpt = Annotated[Path | None, typer.Option(
@@ -60,6 +64,12 @@ def write_report_option(out_dir: Path | None, inputs: ReportInputs,
     folder = out_dir if source is None else report_folder(out_dir, source, n_files)
     files = write_report(folder, inputs, progress)
     typer.echo(f"bandwise: report written: {files.html}", err=True)
+
+
+def check_report_option(out_dir: Path | None) -> None:
+    """Fail at once, before a long analysis, when ``--report DIR`` cannot be written."""
+    if out_dir is not None:
+        check_report_folder(out_dir)
 
 
 def report_folder(out_dir: Path, source: Path, n_files: int) -> Path:
