@@ -28,6 +28,7 @@ from ..node_map import write_node_map
 from ..progress import StderrProgress, step
 from ..tables import human_bytes, human_count, render_table
 from . import CAUTION, DofsOpt, FormatOpt, JsonOpt, PhysicsOpt, app, emit_json, guarded
+from .report_cmd import ReportOpt, check_report_option, renumber_report_inputs, write_report_option
 
 
 def sloan_options(text: str | None) -> dict[str, dict[str, float]]:
@@ -164,7 +165,7 @@ def _renumber_matrix(source: Path, out: Path, node_map: Path, methods: str, obje
                             comment=f"rows renumbered by bandwise ({comp.best.method})")
     write_node_map(node_map, perm)
     return {"comparison": comp, "level": "matrix rows", "output_format": "matrix market",
-            "n_rows": data.n_rows, "front": None}
+            "n_rows": data.n_rows, "front": None, "graph": graph, "matrix": data}
 
 
 def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, objective: str,
@@ -212,6 +213,7 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     level = f"DOF level, {layout.total:,} DOFs: {layout.rule}"
     return {"comparison": comp, "level": level, "output_format": written,
             "n_rows": layout.total, "front": front, "losses": lost,
+            "model": model, "layout": layout, "graph": graph,
             "deck": None if rewrite is None else {"changed_cards": rewrite.changed_cards,
                                                   "notes": deck.notes + rewrite.notes}}
 
@@ -245,6 +247,7 @@ def renumber(
     replace_input: Annotated[bool, typer.Option(
         "--replace-input", help="Allow OUT to be the input file itself (overwritten whole, "
                                 "atomically).")] = False,
+    report_dir: ReportOpt = None,
 ) -> None:
     """Renumber the nodes: try orderings, keep the best, write the mesh and the node map."""
     progress = StderrProgress()
@@ -258,6 +261,7 @@ def renumber(
     if not source.exists():
         raise InputError(f"{source}: no such file")
     _check_outputs(source, out, node_map, replace_input)
+    check_report_option(report_dir)
     if is_matrix_file(source):
         if element_order:
             raise InputError("--element-order needs a mesh, not a matrix")
@@ -266,6 +270,8 @@ def renumber(
         result = _renumber_mesh(source, out, node_map, method, objective, options, progress,
                                 file_format, output_format, dofs_per_node, physics,
                                 element_order)
+    if report_dir is not None:
+        write_report_option(report_dir, renumber_report_inputs(result), progress)
     comp: Comparison = result["comparison"]
     front: ElementReordering | None = result["front"]
     if as_json:
