@@ -601,3 +601,53 @@ def test_report_folder_one_per_input_when_several(tmp_path):
     with pytest.raises(MeshWriteError, match="does not exist"):
         report_folder(tmp_path / "no" / "reports", Path("x.msh"), 2)
     assert not (tmp_path / "no").exists()
+
+
+# --------------------------------------------------------------------------- --report of other commands
+
+
+def test_check_report_option_one_folder_per_mesh(runner, cli_app, tmp_path):
+    out = tmp_path / "reports"
+    frame, gusset = ROOT / "meshes" / "frame.inp", ROOT / "meshes" / "gusset.vtu"
+    result = runner.invoke(cli_app, ["check", str(frame), str(gusset), "--json",
+                                     "--report", str(out)])
+    assert result.exit_code in (0, 1), result.stderr
+    gate = json.loads(result.stdout)                           # stdout stays pure JSON
+    for name, mesh in (("frame", gate["meshes"][0]), ("gusset", gate["meshes"][1])):
+        doc = json.loads((out / name / "report.json").read_text())
+        assert doc["mesh"]["nodes"] == mesh["nodes"]
+        # the report's verdict is the gate of check: same findings, same --fail-on
+        assert (doc["verdict"]["status"] == "problems found") == (mesh["verdict"] == "problems")
+        assert [f["code"] for f in doc["findings"]] == [f["code"] for f in mesh["findings"]]
+    assert result.stderr.count("report written") == 2
+
+
+def test_check_report_option_bad_folder_fails_before_work(runner, cli_app, tmp_path):
+    result = runner.invoke(cli_app, ["check", str(ROOT / "meshes" / "frame.inp"),
+                                     "--report", str(tmp_path / "no" / "rep")])
+    assert result.exit_code == 2 and "does not exist" in result.stderr
+    assert result.stdout == ""                                 # nothing was checked
+
+
+def test_renumber_report_option(runner, cli_app, tmp_path):
+    out = tmp_path / "frame_rn.inp"
+    result = runner.invoke(cli_app, ["renumber", str(ROOT / "meshes" / "frame.inp"), str(out),
+                                     "--method", "rcm", "--json", "--report",
+                                     str(tmp_path / "rep")])
+    assert result.exit_code == 0, result.stderr
+    run = json.loads(result.stdout)
+    doc = json.loads((tmp_path / "rep" / "report.json").read_text())
+    assert doc["comparison"] == report_document_comparison(run["comparison"])
+    assert doc["renumbering"]["method"] == run["comparison"]["chosen"]
+    assert doc["verdict"]["status"] == "not checked"           # renumber runs no checks
+
+
+def report_document_comparison(comparison: dict) -> dict:
+    """The comparison as the report stores it: the command's own, plus the Cholesky storage."""
+    from bandwise.report.document import cholesky_bytes
+
+    out = json.loads(json.dumps(comparison))
+    for row in out["methods"]:
+        if isinstance(row.get("cholesky_nnz"), int) and row.get("dofs"):
+            row["cholesky_bytes"] = cholesky_bytes(row["cholesky_nnz"], row["dofs"]["n_rows"])
+    return out
