@@ -488,3 +488,11 @@ def test_cli_deck_with_unrewritable_cards_fails_cleanly(tmp_path, runner, cli_ap
     assert result.exit_code == 2
     assert "SEQGP" in result.stderr and len(result.stderr.strip().splitlines()) == 1
     assert not out.exists()
+
+
+def test_damaged_number_in_a_long_node_table_is_a_read_error():
+    """A table of 20 node lines, one coordinate damaged: the line-by-line reader names it."""
+    lines = [f"{k}, {k}.0, 0.0, 0.0\n" for k in range(1, 21)]
+    lines[7] = "8, 1.0\x1b+00, 0.0, 0.0\n"
+    with pytest.raises(MeshReadError, match="line 9: .* is not a coordinate"):
+        parse_keyword_deck("*NODE\n" + "".join(lines))

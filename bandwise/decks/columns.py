@@ -89,9 +89,12 @@ def comma_table(lines: list[str], first: int, stop: int) -> Table | None:
     nondigit = np.concatenate([[0], np.cumsum(~_DIGIT[raw])])
     integer = (nondigit[tok_end] - nondigit[tok_start]) == 0
     flat = text.replace("\r", " ").replace("\n", ",").rstrip(", ")
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # a token that is no number: detected by the count
-        values = np.fromstring(flat, dtype=np.float64, sep=",")
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # a token that is no number: detected by the count
+            values = np.fromstring(flat, dtype=np.float64, sep=",")
+    except ValueError:  # newer numpy raises where older ones warned
+        return None
     if values.size != m * k:
         return None
     offset = line_start[:, None]
