@@ -73,7 +73,7 @@ def verdict(inputs: ReportInputs) -> dict[str, str]:
         return {"status": PROBLEMS, "reason": "; ".join(reasons)}
     if inputs.findings is None:
         why = ("a matrix has no mesh to check" if inputs.model is None
-               else "the mesh checks were not run")
+               else "the mesh checks were not run (bandwise check --report runs them)")
         return {"status": UNCHECKED, "reason": why}
     rest = len(inputs.findings)
     tail = f" ({rest} finding{'s' * (rest != 1)} below the gate to review)" if rest else ""
