@@ -126,6 +126,27 @@ def _check_data_header(data: Any, pos: int, path: Path, section: str) -> None:
                                     f"in a file of {len(data):,} bytes")
 
 
+_GENERATE = re.compile(rb"^\*[^\n]*generate[^\n]*\n(?:\*\*[^\n]*\n)*\s*(\d+)\s*,\s*(\d+)"
+                       rb"(?:\s*,\s*(\d+))?", re.IGNORECASE | re.MULTILINE)
+
+
+def _check_generate_ranges(path: Path) -> None:
+    """Refuse a keyword deck whose GENERATE range holds more ids than the file could use.
+
+    meshio builds the whole range: a damaged bound (a billion) costs gigabytes.
+    """
+    try:
+        with open(path, "rb") as fh, mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as data:
+            for m in _GENERATE.finditer(data):
+                first, last = int(m.group(1)), int(m.group(2))
+                step = max(int(m.group(3) or 1), 1)
+                if (last - first) // step > max(100 * len(data), 10**7):
+                    raise MeshReadError(f"{path}: a GENERATE range {first}..{last} holds more "
+                                        "ids than the file has bytes: the deck is damaged")
+    except (OSError, ValueError):
+        return
+
+
 def _check_enddata(path: Path) -> None:
     """Refuse a bulk-data deck without its closing ENDDATA card (meshio would wait forever)."""
     try:
@@ -184,6 +205,8 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
         _check_gmsh_data_headers(path)
     if fmt == "nastran":
         _check_enddata(path)
+    if fmt == "abaqus":
+        _check_generate_ranges(path)
     meshio = _meshio()
     captured = io.StringIO()
     node_tags: dict[str, np.ndarray] = {}

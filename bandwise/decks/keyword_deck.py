@@ -55,6 +55,9 @@ _SOLID_BY_COUNT = {4: "tetra", 10: "tetra10", 8: "hexahedron", 20: "hexahedron20
 _SURFACE_BY_COUNT = {3: "triangle", 6: "triangle6", 4: "quad", 8: "quad8", 9: "quad9"}
 _LINE_BY_COUNT = {2: "line", 3: "line3"}
 
+#: Most ids a GENERATE range may hold (a damaged bound would cost gigabytes).
+MAX_RANGE = 10**7
+
 _NODE_TOKEN = re.compile(r"^(?:[A-Za-z_][^.]*\.)?(\d+)$")
 
 
@@ -367,8 +370,9 @@ class _Reader:
                 nums = [_int(t, st, j, "node range bound") for t in toks[:3]]
                 start, stop = nums[0], nums[1] if len(nums) > 1 else nums[0]
                 step = nums[2] if len(nums) > 2 else 1
-                if step <= 0 or stop < start:
-                    raise MeshReadError(f"{st.path}: line {j + 1}: bad node range {toks}")
+                if step <= 0 or stop < start or (stop - start) // step > MAX_RANGE:
+                    raise MeshReadError(f"{st.path}: line {j + 1}: bad node range "
+                                        f"{start}, {stop}, {step}")
                 ids.extend(range(start, stop + 1, step))
             self.add_set(name, ids)
             if self.rewritable and data:
