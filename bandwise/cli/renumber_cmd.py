@@ -26,9 +26,11 @@ from ..matrix_io import (
 from ..meshio_io import detect_format, read_model, write_model
 from ..node_map import write_node_map
 from ..progress import StderrProgress, step
+from ..supports import parse_support, read_support_file
 from ..tables import human_bytes, human_count, render_table
 from . import CAUTION, DofsOpt, FormatOpt, JsonOpt, PhysicsOpt, app, emit_json, guarded
 from .report_cmd import ReportOpt, check_report_option, renumber_report_inputs, write_report_option
+from .support_options import DofMapOpt, SupportFileOpt, SupportOpt, renumbered_equations
 
 
 def sloan_options(text: str | None) -> dict[str, dict[str, float]]:
@@ -172,7 +174,8 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
                    options: dict[str, dict[str, float]], progress: StderrProgress,
                    file_format: str | None, output_format: str | None,
                    dofs_per_node: int | None, physics: str | None,
-                   element_order: bool) -> dict[str, Any]:
+                   element_order: bool, supports: list[Any] | None = None,
+                   dof_map: Path | None = None) -> dict[str, Any]:
     """Mesh in, renumbered mesh out (same format unless told otherwise)."""
     if output_format is not None or not _same_extension(source, out):
         _check_writable_format(out, output_format)
@@ -193,6 +196,8 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     fmt = _output_format(source, out, model.file_format, output_format)
     comp = compare_orderings(graph, methods, objective, layout, options, progress)
     perm = comp.best.perm
+    with step(progress, "numbering equations"):
+        equations = renumbered_equations(model, layout, graph, supports or [], perm, dof_map)
     renumbered = model.renumbered(perm)
     front = None
     if element_order:
@@ -213,7 +218,7 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     level = f"DOF level, {layout.total:,} DOFs: {layout.rule}"
     return {"comparison": comp, "level": level, "output_format": written,
             "n_rows": layout.total, "front": front, "losses": lost,
-            "model": model, "layout": layout, "graph": graph,
+            "model": model, "layout": layout, "graph": graph, "equations": equations,
             "deck": None if rewrite is None else {"changed_cards": rewrite.changed_cards,
                                                   "notes": deck.notes + rewrite.notes}}
 
@@ -248,9 +253,20 @@ def renumber(
         "--replace-input", help="Allow OUT to be the input file itself (overwritten whole, "
                                 "atomically).")] = False,
     report_dir: ReportOpt = None,
+    support: SupportOpt = None,
+    support_file: SupportFileOpt = None,
+    dof_map: DofMapOpt = None,
 ) -> None:
-    """Renumber the nodes: try orderings, keep the best, write the mesh and the node map."""
+    """Renumber the nodes: try orderings, keep the best, write the mesh and the node map.
+
+    With supports, the held DOFs are set aside and the equations numbered in
+    the new node order: the reduced system's figures are shown before and
+    after, and ``--dof-map`` writes the equation of every DOF.
+    """
     progress = StderrProgress()
+    supports = [parse_support(t) for t in support or []]
+    if support_file is not None:
+        supports += read_support_file(support_file)
     node_map = map_path or default_map_path(out)
     options = sloan_options(sloan_weights)
     if options and method != "auto" and "sloan" not in [m.strip() for m in method.split(",")]:
@@ -265,11 +281,13 @@ def renumber(
     if is_matrix_file(source):
         if element_order:
             raise InputError("--element-order needs a mesh, not a matrix")
+        if supports or dof_map is not None:
+            raise InputError("supports and --dof-map need a mesh, not a matrix")
         result = _renumber_matrix(source, out, node_map, method, objective, options, progress)
     else:
         result = _renumber_mesh(source, out, node_map, method, objective, options, progress,
                                 file_format, output_format, dofs_per_node, physics,
-                                element_order)
+                                element_order, supports, dof_map)
     if report_dir is not None:
         write_report_option(report_dir, renumber_report_inputs(result), progress)
     comp: Comparison = result["comparison"]
@@ -288,6 +306,8 @@ def renumber(
             "element_order": None if front is None else front.to_dict(),
             "losses": result.get("losses", []),
             "deck": result.get("deck"),
+            "equations": (None if result.get("equations") is None
+                          else result["equations"].to_dict()),
         })
         return
     typer.echo(comparison_text(comp, result["level"]))
@@ -299,6 +319,8 @@ def renumber(
     value = best.value(comp.objective) or 0.0
     shown = f"{value:,.1f}" if comp.objective == "wavefront" else f"{int(value):,}"
     typer.echo(f"chosen: {best.method} ({comp.objective} {shown}{gain})")
+    if result.get("equations") is not None:
+        typer.echo(result["equations"].text())
     for lost in result.get("losses", []):
         typer.echo(f"not kept by the output format: {lost}")
     if result.get("deck"):

@@ -178,6 +178,53 @@ def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
     return SupportReport(supports, analysis, equations, stiffness, bool(request.supports))
 
 
+@dataclass(frozen=True)
+class RenumberedEquations:
+    """Equation counts and the reduced system before and after a renumbering."""
+
+    before: EquationNumbering
+    after: EquationNumbering
+    supports: SupportSet
+
+    def to_dict(self) -> dict[str, Any]:
+        """The ``renumber --json`` entry ``equations``."""
+        return {"supports": self.supports.to_dict(), "before": self.before.to_dict(),
+                "after": self.after.to_dict()}
+
+    def text(self) -> str:
+        """One line of counts, and the reduced-system figures before -> after."""
+        a, b = self.after, self.before
+        line = (f"equations: {a.n_dofs:,} DOFs, {a.n_fixed:,} held, {a.n_equations:,} "
+                "equations (held DOFs set aside, free DOFs numbered node after node)")
+        if a.reduced is None or b.reduced is None or not a.n_equations:
+            return line
+        rows = [(name, f"{getattr(b.reduced, key):,}", f"{getattr(a.reduced, key):,}")
+                for name, key in (("bandwidth", "bandwidth"), ("profile", "profile"),
+                                  ("max wavefront", "max_wavefront"))]
+        rows.append(("skyline storage", human_bytes(b.reduced.skyline_bytes),
+                     human_bytes(a.reduced.skyline_bytes)))
+        return "\n".join([line, "reduced system", render_table(
+            rows, header=("figure", "before", "after"), align="lrr")])
+
+
+def renumbered_equations(model: Model, layout: DofLayout, graph: NodeGraph,
+                         supports: list[Support], perm: Any,
+                         dof_map: Path | None = None) -> RenumberedEquations:
+    """Number the equations before and after ``perm``; write the DOF map of the new numbering.
+
+    In the map, nodes are labelled by their 1-based position in the
+    renumbered mesh.
+    """
+    held = apply_supports(model, layout, supports)
+    before = equation_numbering(layout, held.fixed, None, graph)
+    after = equation_numbering(layout, held.fixed, perm, graph)
+    if dof_map is not None:
+        from ..model import inverse_permutation
+
+        write_dof_map(dof_map, after, inverse_permutation(perm) + 1, "node")
+    return RenumberedEquations(before, after, held)
+
+
 def merged_findings(findings: list[Finding], report: SupportReport) -> list[Finding]:
     """The check findings with the support findings added, most serious first (stable)."""
     return sorted([*findings, *report.findings()], key=lambda f: severity_rank(f.severity))
