@@ -340,6 +340,11 @@ def model_from_meshio(mesh: Any, source: str = "", file_format: str = "") -> Mod
     )
 
 
+#: Largest coordinate magnitude accepted: far beyond any model size, while products of
+#: coordinates stay finite in double precision (common practice).
+MAX_COORDINATE = 1e50
+
+
 def validate_model(model: Model) -> None:
     """Raise :class:`MeshReadError` for a mesh no analysis can start from."""
     src = model.source or "mesh"
@@ -354,6 +359,12 @@ def validate_model(model: Model) -> None:
         raise MeshReadError(
             f"{src}: {int(bad.sum())} node(s) have non-finite coordinates (first: node at position {first})"
         )
+    huge = np.abs(model.points).max(axis=1) > MAX_COORDINATE
+    if huge.any():
+        first = int(np.flatnonzero(huge)[0]) + 1
+        raise MeshReadError(f"{src}: {int(huge.sum())} node(s) have coordinates beyond "
+                            f"{MAX_COORDINATE:g} (first: node at position {first}): the file is "
+                            "damaged")
     if model.n_cells == 0:
         raise MeshReadError(f"{src}: the mesh has {n} nodes but no elements")
     for k, block in enumerate(model.cells):
