@@ -109,16 +109,32 @@ def renumber_report_inputs(result: dict[str, Any]) -> ReportInputs:
     """The report of a ``renumber`` run from what it computed (mesh or matrix).
 
     ``result`` holds the comparison and either ``model``, ``layout`` and
-    ``graph`` (a mesh) or ``matrix`` and ``graph`` (a matrix file).  The
-    mesh checks are not part of ``renumber``: the report says so.
+    ``graph`` (a mesh) or ``matrix`` and ``graph`` (a matrix file).  A report
+    is a record of what was checked, so for a mesh the checks and the
+    zero-energy analysis run here too (``renumber`` alone does not need
+    them), and the verdict is the one ``check`` would give.
     """
+    from ..checks import run_checks
+    from ..checks.findings import Finding
+    from ..rigid import zero_energy_modes
+
     graph, comparison = result["graph"], result["comparison"]
     if "matrix" in result:
         return ReportInputs(model=None, graph=graph, layout=1,
                             summary=summarise_matrix(result["matrix"]), comparison=comparison)
     model, layout = result["model"], result["layout"]
+    equations = result.get("equations")  # the numbering after renumbering, supports held
+    held = None if equations is None else equations.supports
+    modes = zero_energy_modes(model, layout, held, graph)
+    findings = run_checks(model, graph)
+    if held is not None and held.applied and modes.n_body_modes:
+        findings = [Finding("supports.free_modes", "error", modes.n_body_modes,
+                            f"the supports leave {modes.n_body_modes} rigid-body or mechanism "
+                            "mode(s) free: the stiffness matrix is singular"), *findings]
     return ReportInputs(model=model, graph=graph, layout=layout,
-                        summary=summarise(model, layout, graph), comparison=comparison)
+                        summary=summarise(model, layout, graph), comparison=comparison,
+                        findings=findings, supports=held, modes=modes,
+                        equations=None if equations is None else equations.after)
 
 
 @app.command()
