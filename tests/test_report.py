@@ -639,7 +639,12 @@ def test_renumber_report_option(runner, cli_app, tmp_path):
     doc = json.loads((tmp_path / "rep" / "report.json").read_text())
     assert doc["comparison"] == report_document_comparison(run["comparison"])
     assert doc["renumbering"]["method"] == run["comparison"]["chosen"]
-    assert doc["verdict"]["status"] == "not checked"           # renumber runs no checks
+    # the report of a renumbering runs the checks too: the same findings as check
+    checked = json.loads(runner.invoke(cli_app, ["check", str(ROOT / "meshes" / "frame.inp"),
+                                                 "--json"]).stdout)["meshes"][0]
+    assert doc["verdict"]["status"] in ("ready", "problems found")
+    assert sorted(f["code"] for f in doc["findings"]) == sorted(
+        f["code"] for f in checked["findings"])
 
 
 def report_document_comparison(comparison: dict) -> dict:
