@@ -21,6 +21,15 @@ def inventory():
     return [f for f in json.loads(path.read_text())["files"] if f["role"] == "mesh"]
 
 
+def _grid_cards(path):
+    """Number of GRID / GRID* cards of a bulk-data deck (first field of a line)."""
+    count = 0
+    for line in path.read_text(errors="replace").splitlines():
+        first = line.split(",")[0][:8].strip().upper()
+        count += first in ("GRID", "GRID*")
+    return count
+
+
 def _id(entry):
     return entry["file"]
 
@@ -34,6 +43,14 @@ def test_check_every_real_mesh(runner, cli_app, entry):
     result = runner.invoke(cli_app, ["check", str(path), "--json"])
     reads = facts["reads"] and facts.get("autodetect_reads", True)
     n_cells = sum(facts.get("cells", {}).values()) if reads else 0
+    if path.suffix.lower() in (".bdf", ".nas", ".fem") and not (reads and n_cells > 0):
+        # bandwise reads bulk-data decks itself (free field, continuations,
+        # INCLUDE files), where meshio fails or finds no elements: the
+        # reference is then the file's own node cards.
+        assert result.exit_code in (0, 1), result.stderr
+        mesh = json.loads(result.stdout)["meshes"][0]
+        assert mesh["nodes"] == _grid_cards(path) and mesh["n_elements"] > 0
+        return
     if reads and n_cells > 0:
         # 0: nothing at or above --fail-on; 1: it ran and found problems (real
         # files do have disconnected parts and inverted cells)

@@ -31,11 +31,16 @@ class CheckOptions:
         Fraction of the shortest element edge used when ``tolerance`` is None.
     max_listed
         Most node / element labels kept in one finding (the count is exact).
+    links
+        Node groups tied by something other than elements (rigid links and
+        multi-point constraints of a solver deck), as ``(m, k)`` index arrays:
+        parts joined only by them count as one.
     """
 
     tolerance: float | None = None
     relative_tolerance: float = 1e-3
     max_listed: int = 10_000
+    links: tuple[NDArray[np.int64], ...] = ()
 
     def __post_init__(self) -> None:
         if self.tolerance is not None and not self.tolerance > 0:
@@ -141,6 +146,9 @@ class CheckContext:
             if use.any():
                 _union_cells(np.ascontiguousarray(b.data, dtype=np.int64),
                              np.flatnonzero(use).astype(np.int64), parent)
+        for group in self.options.links:
+            _union_cells(np.ascontiguousarray(group, dtype=np.int64),
+                         np.arange(len(group), dtype=np.int64), parent)
         coupled = self.references > 0
         part = np.full(n, -1, dtype=np.int64)
         if not coupled.any():

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 from typing import Annotated
 
@@ -17,9 +18,10 @@ from ..checks.verdict import (
     summary_line,
     verdict,
 )
+from ..decks import deck_links, deck_support_set
+from ..decks.files import deck_graph, read_mesh_or_deck
 from ..dofs import dof_layout
 from ..graph import node_graph
-from ..meshio_io import read_model
 from ..progress import StderrProgress
 from ..summary import MeshSummary, summarise
 from ..tables import human_bytes, human_count, render_table
@@ -148,16 +150,20 @@ def check(
         return
     request = support_request(support, supports_file, stiffness_check, dof_map, len(files))
     reports = []
-    options = CheckOptions(tolerance=tolerance, relative_tolerance=relative_tolerance)
+    base_options = CheckOptions(tolerance=tolerance, relative_tolerance=relative_tolerance)
     progress = StderrProgress()
     results = []
     all_findings = []
     for path in files:
-        model = read_model(path, file_format)
+        model, deck = read_mesh_or_deck(path, file_format)
+        options = base_options if deck is None else dataclasses.replace(
+            base_options, links=tuple(deck_links(deck)))
         layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
-        graph = node_graph(model)
+        graph = node_graph(model) if deck is None else deck_graph(deck, model)
         results.append(summarise(model, layout, graph=graph, progress=progress))
-        reports.append(analyse_supports(model, layout, graph, request, progress))
+        reports.append(analyse_supports(
+            model, layout, graph, request, progress,
+            None if deck is None else deck_support_set(deck, layout)))
         all_findings.append(merged_findings(run_checks(model, graph, options, progress=progress),
                                             reports[-1]))
         write_report_option(report_dir, mesh_report_inputs(

@@ -160,9 +160,16 @@ class SupportReport:
 
 def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
                      request: SupportRequest, progress: Progress | None = None,
-                     ) -> SupportReport:
-    """Apply the supports, find the zero-energy modes, number the equations (and check)."""
+                     file_supports: SupportSet | None = None) -> SupportReport:
+    """Apply the supports, find the zero-energy modes, number the equations (and check).
+
+    ``file_supports`` are supports the input file itself gives (the
+    boundary-condition cards of a solver deck); they add to the options'.
+    """
     supports = apply_supports(model, layout, list(request.supports))
+    if file_supports is not None and file_supports.applied:
+        supports = SupportSet(supports.fixed | file_supports.fixed,
+                              (*supports.applied, *file_supports.applied))
     with step(progress, "finding zero-energy modes"):
         analysis = zero_energy_modes(model, layout, supports, graph)
     with step(progress, "numbering equations"):
@@ -175,7 +182,7 @@ def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
         labels = model.node_labels()[0]
         write_dof_map(request.dof_map, equations, labels,
                       "node_id" if model.node_ids is not None else "node")
-    return SupportReport(supports, analysis, equations, stiffness, bool(request.supports))
+    return SupportReport(supports, analysis, equations, stiffness, bool(supports.applied))
 
 
 @dataclass(frozen=True)

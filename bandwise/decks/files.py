@@ -61,3 +61,25 @@ def write_renumbered_deck(deck: Deck, perm: NDArray[np.integer],
     result = renumber_deck(deck, new_ids(deck.node_ids, perm))
     write_bytes_atomic(Path(out), result.text.encode("utf-8", errors="surrogateescape"))
     return result
+
+
+def read_mesh_or_deck(path: str | os.PathLike[str],
+                      file_format: str | None = None) -> tuple[Model, Deck | None]:
+    """Read a mesh for analysis; a solver input deck through the deck reader.
+
+    The deck reader keeps the original node ids, the boundary-condition
+    cards and the rigid links and constraints, which meshio drops.  A deck
+    the deck reader refuses (include files, cards it does not rewrite) is
+    read through meshio instead, as any other mesh.
+    """
+    from ..errors import BandwiseError
+    from ..meshio_io import read_model
+    from . import deck_kind, read_deck
+
+    if deck_kind(path, file_format) is not None:
+        try:
+            deck = read_deck(path, file_format)
+            return deck.to_model(), deck
+        except BandwiseError:
+            pass  # meshio's reader gives the error, or a mesh, as for any file
+    return read_model(path, file_format), None
