@@ -11,7 +11,23 @@ wavefront and solver storage under any node numbering, and renumber it.
 
 from __future__ import annotations
 
+import os
 from importlib.metadata import PackageNotFoundError, version
+
+
+def _numba_cache_dir() -> str:
+    """Where numba keeps the compiled kernels: the user's cache folder, not the package.
+
+    numba writes its cache beside the source by default.  In an installed
+    copy that is site-packages, where ``pip uninstall`` leaves the cache
+    folders behind as an empty namespace package that then shadows a later
+    editable install.  Set ``NUMBA_CACHE_DIR`` to choose another place.
+    """
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return os.path.join(base, "bandwise", "numba")
+
+
+os.environ.setdefault("NUMBA_CACHE_DIR", _numba_cache_dir())  # before numba is imported
 
 from .compare import Comparison, OrderingResult, compare_orderings
 from .dofs import DofLayout, dof_layout
