@@ -23,6 +23,7 @@ from ..graph import NodeGraph, node_graph
 from ..meshio_io import skipped_blocks
 from ..model import Model
 from ..progress import Progress, step
+from ..topology import FacetTable
 from .coincident import check_coincident
 from .context import CheckContext, CheckOptions
 from .elements import check_elements
@@ -52,7 +53,8 @@ CHECKS: tuple[tuple[str, Callable[[CheckContext], list[Finding]]], ...] = (
 
 def run_checks(model: Model, graph: NodeGraph | None = None,
                options: CheckOptions | None = None,
-               progress: Progress | None = None) -> list[Finding]:
+               progress: Progress | None = None,
+               table: FacetTable | None = None) -> list[Finding]:
     """Run every mesh check and return the findings, most serious first.
 
     Parameters
@@ -65,6 +67,10 @@ def run_checks(model: Model, graph: NodeGraph | None = None,
         Tolerances and limits; defaults when None.
     progress
         Receives the steps (the library itself never prints).
+    table
+        The model's facet table (:func:`~bandwise.topology.facet_table`), if
+        already built: the costliest shared step, also needed by the
+        zero-energy analysis.
 
     Returns
     -------
@@ -78,6 +84,8 @@ def run_checks(model: Model, graph: NodeGraph | None = None,
         with step(progress, "building node graph"):
             graph = node_graph(model)
     ctx = CheckContext(model, graph, options)
+    if table is not None:
+        ctx.__dict__["table"] = table  # the cached property, given
     findings = _skipped(model)
     if not ctx.has_elements:
         findings.append(Finding(

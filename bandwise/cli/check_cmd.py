@@ -22,9 +22,10 @@ from ..decks import deck_links, deck_support_set
 from ..decks.files import deck_graph, read_mesh_or_deck
 from ..dofs import dof_layout
 from ..graph import node_graph
-from ..progress import StderrProgress
+from ..progress import StderrProgress, step
 from ..summary import MeshSummary, summarise
 from ..tables import human_bytes, human_count, render_table
+from ..topology import face_connected_blocks, facet_table
 from . import (
     CAUTION,
     EXIT_FINDINGS,
@@ -161,11 +162,14 @@ def check(
         layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
         graph = node_graph(model) if deck is None else deck_graph(deck, model)
         results.append(summarise(model, layout, graph=graph, progress=progress))
+        with step(progress, "matching element facets"):  # shared by the checks and the modes
+            table = facet_table(model)
+            _, labels = face_connected_blocks(model, table)
         reports.append(analyse_supports(
             model, layout, graph, request, progress,
-            None if deck is None else deck_support_set(deck, layout)))
-        all_findings.append(merged_findings(run_checks(model, graph, options, progress=progress),
-                                            reports[-1]))
+            None if deck is None else deck_support_set(deck, layout), labels))
+        all_findings.append(merged_findings(
+            run_checks(model, graph, options, progress=progress, table=table), reports[-1]))
         write_report_option(report_dir, mesh_report_inputs(
             model, layout, graph, results[-1], all_findings[-1], reports[-1], fail_on=fail_on),
             progress, path, len(files))

@@ -160,18 +160,20 @@ class SupportReport:
 
 def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
                      request: SupportRequest, progress: Progress | None = None,
-                     file_supports: SupportSet | None = None) -> SupportReport:
+                     file_supports: SupportSet | None = None,
+                     labels: list[Any] | None = None) -> SupportReport:
     """Apply the supports, find the zero-energy modes, number the equations (and check).
 
     ``file_supports`` are supports the input file itself gives (the
     boundary-condition cards of a solver deck); they add to the options'.
+    ``labels`` are the face-connected blocks, if already found.
     """
     supports = apply_supports(model, layout, list(request.supports))
     if file_supports is not None and file_supports.applied:
         supports = SupportSet(supports.fixed | file_supports.fixed,
                               (*supports.applied, *file_supports.applied))
     with step(progress, "finding zero-energy modes"):
-        analysis = zero_energy_modes(model, layout, supports, graph)
+        analysis = zero_energy_modes(model, layout, supports, graph, labels)
     with step(progress, "numbering equations"):
         equations = equation_numbering(layout, supports.fixed, None, graph)
     stiffness = None
