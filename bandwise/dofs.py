@@ -198,7 +198,8 @@ def dof_layout(model: Model, dofs_per_node: int | None = None,
         masks[_nodes_of(data[structural], n)] |= family_mask[dim]
         used[dim] = used.get(dim, 0) + int(np.count_nonzero(structural))
     if not used:
-        raise InputError("the mesh has no elements that couple nodes (only vertex cells)")
+        raise InputError(f"{model.source or 'mesh'}: no element couples nodes (only vertex cells, "
+                         "or cell types bandwise does not analyse)")
     main_dim = max(used, key=lambda d: (used[d], d))
     orphan = masks == 0
     masks[orphan] = family_mask[main_dim]

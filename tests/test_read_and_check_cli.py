@@ -173,3 +173,15 @@ def test_atomic_text_output_gets_ordinary_permissions(tmp_path):
         os.umask(mask)
     assert (tmp_path / "map.csv").stat().st_mode & 0o777 == 0o644
     assert [p.name for p in tmp_path.iterdir()] == ["map.csv"]
+
+
+def test_only_vertex_cells_is_refused_naming_the_file(runner, cli_app, tmp_path):
+    # Point masses alone couple no node: there is no stiffness matrix to size.
+    import meshio
+
+    path = tmp_path / "points_only.vtu"
+    meshio.write(path, meshio.Mesh(np.array([[0.0, 0, 0], [1, 0, 0]]),
+                                   [("vertex", np.array([[0], [1]]))]))
+    code, out, err = run(runner, cli_app, "check", path)
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and "points_only.vtu" in err and "vertex" in err

@@ -156,11 +156,13 @@ def check(
     results = []
     all_findings = []
     for path in files:
-        model, deck = read_mesh_or_deck(path, file_format)
+        with step(progress, f"reading {path.name}"):
+            model, deck = read_mesh_or_deck(path, file_format)
         options = base_options if deck is None else dataclasses.replace(
             base_options, links=tuple(deck_links(deck)))
         layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
-        graph = node_graph(model) if deck is None else deck_graph(deck, model)
+        with step(progress, "building node graph"):
+            graph = node_graph(model) if deck is None else deck_graph(deck, model)
         results.append(summarise(model, layout, graph=graph, progress=progress))
         with step(progress, "matching element facets"):  # shared by the checks and the modes
             table = facet_table(model)
