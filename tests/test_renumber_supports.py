@@ -47,3 +47,17 @@ def test_renumber_reports_the_reduced_system_and_writes_the_dof_map(runner, cli_
     assert sum(r["equation"] == "fixed" for r in rows) == 675
     numbers = [int(r["equation"]) for r in rows if r["equation"] != "fixed"]
     assert numbers == list(range(1, 3241))  # free DOFs numbered in node order of the output
+
+
+def test_deck_boundary_cards_count_when_renumbering(runner, cli_app, tmp_path):
+    # The demo frame's six column bases held in all 6 DOFs by a *BOUNDARY
+    # card: 36 DOFs set aside, as --support "column_bases:fixed" would.
+    deck = tmp_path / "frame.inp"
+    deck.write_text((MESHES / "frame.inp").read_text() + "*BOUNDARY\ncolumn_bases, 1, 6\n")
+    result = runner.invoke(cli_app, ["renumber", str(deck), str(tmp_path / "out.inp"),
+                                     "--method", "rcm", "--json"])
+    assert result.exit_code == 0, result.stderr
+    after = json.loads(result.stdout)["equations"]["after"]
+    assert after["fixed_dofs"] == 36 and after["equations"] == 540
+    text = (tmp_path / "out.inp").read_text()
+    assert text.rstrip().endswith("*BOUNDARY\ncolumn_bases, 1, 6")  # the card kept as written

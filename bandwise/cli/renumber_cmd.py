@@ -11,6 +11,7 @@ import typer
 
 from .. import __version__
 from ..compare import OBJECTIVES, Comparison, compare_orderings
+from ..decks import deck_support_set
 from ..decks.files import deck_graph, deck_to_renumber, write_renumbered_deck
 from ..dofs import dof_layout
 from ..errors import InputError, MeshReadError, MeshWriteError
@@ -197,7 +198,9 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     comp = compare_orderings(graph, methods, objective, layout, options, progress)
     perm = comp.best.perm
     with step(progress, "numbering equations"):
-        equations = renumbered_equations(model, layout, graph, supports or [], perm, dof_map)
+        equations = renumbered_equations(
+            model, layout, graph, supports or [], perm, dof_map,
+            None if deck is None else deck_support_set(deck, layout))
     renumbered = model.renumbered(perm)
     front = None
     if element_order:

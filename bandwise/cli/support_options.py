@@ -207,6 +207,8 @@ class RenumberedEquations:
                 "equations (held DOFs set aside, free DOFs numbered node after node)")
         if a.reduced is None or b.reduced is None or not a.n_equations:
             return line
+        if not a.n_fixed:
+            return line + "\nno DOF held: the reduced system is the whole one compared above"
         rows = [(name, f"{getattr(b.reduced, key):,}", f"{getattr(a.reduced, key):,}")
                 for name, key in (("bandwidth", "bandwidth"), ("profile", "profile"),
                                   ("max wavefront", "max_wavefront"))]
@@ -218,13 +220,18 @@ class RenumberedEquations:
 
 def renumbered_equations(model: Model, layout: DofLayout, graph: NodeGraph,
                          supports: list[Support], perm: Any,
-                         dof_map: Path | None = None) -> RenumberedEquations:
+                         dof_map: Path | None = None,
+                         file_supports: SupportSet | None = None) -> RenumberedEquations:
     """Number the equations before and after ``perm``; write the DOF map of the new numbering.
 
-    In the map, nodes are labelled by their 1-based position in the
-    renumbered mesh.
+    ``file_supports`` (a solver deck's boundary-condition cards) add to
+    ``supports``.  In the map, nodes are labelled by their 1-based position
+    in the renumbered mesh.
     """
     held = apply_supports(model, layout, supports)
+    if file_supports is not None and file_supports.applied:
+        held = SupportSet(held.fixed | file_supports.fixed,
+                          (*held.applied, *file_supports.applied))
     before = equation_numbering(layout, held.fixed, None, graph)
     after = equation_numbering(layout, held.fixed, perm, graph)
     if dof_map is not None:
