@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass
-from typing import Any
 
 import numba
 import numpy as np
@@ -23,7 +22,7 @@ from scipy.spatial import cKDTree
 
 from .errors import InputError
 from .graph import NodeGraph, node_graph
-from .model import CellBlock, Model
+from .model import CellBlock, Model, mapped_connectivity, mapped_periodic
 
 #: Direction of the sweep in :func:`coincident_pairs`: a fixed unit vector
 #: with unequal components, so that grid-aligned nodes project apart.
@@ -268,27 +267,12 @@ def _collapsed(model: Model, rep: NDArray[np.int64]) -> Model:
     new_of_old = new_index[rep]
     point_sets = {name: np.unique(new_of_old[np.asarray(idx, dtype=np.int64)])
                   for name, idx in model.point_sets.items()}
-    periodic = None
-    if model.periodic is not None:
-        periodic = []
-        for entry in model.periodic:
-            entry = list(entry)
-            entry[-1] = new_of_old[np.asarray(entry[-1], dtype=np.int64)]
-            periodic.append(entry)
     return dataclasses.replace(
         model,
         points=model.points[keep],
-        cells=[CellBlock(b.type, _remapped(b.data, new_of_old)) for b in model.cells],
+        cells=[CellBlock(b.type, mapped_connectivity(b.data, new_of_old)) for b in model.cells],
         point_data={k: np.asarray(v)[keep] for k, v in model.point_data.items()},
         point_sets=point_sets,
         node_ids=None if model.node_ids is None else model.node_ids[keep],
-        periodic=periodic,
+        periodic=mapped_periodic(model.periodic, new_of_old),
     )
-
-
-def _remapped(data: NDArray[Any], new_of_old: NDArray[np.int64]) -> NDArray[Any]:
-    if data.dtype != object:
-        return new_of_old[data]
-    out = np.empty(len(data), dtype=object)
-    out[:] = [new_of_old[np.asarray(c, dtype=np.int64)] for c in data]
-    return out

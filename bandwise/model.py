@@ -153,33 +153,40 @@ class Model:
         """
         perm = check_permutation(perm, self.n_nodes)
         new_of_old = inverse_permutation(perm)
-        periodic = None
-        if self.periodic is not None:
-            periodic = []
-            for entry in self.periodic:
-                entry = list(entry)
-                entry[-1] = new_of_old[np.asarray(entry[-1], dtype=np.int64)]
-                periodic.append(entry)
         return dataclasses.replace(
             self,
             points=self.points[perm],
-            cells=[CellBlock(b.type, _mapped(new_of_old, b.data)) for b in self.cells],
+            cells=[CellBlock(b.type, mapped_connectivity(b.data, new_of_old))
+                   for b in self.cells],
             point_data={k: np.asarray(v)[perm] for k, v in self.point_data.items()},
             cell_data={k: [np.array(a, copy=True) for a in v] for k, v in self.cell_data.items()},
             point_sets={k: new_of_old[np.asarray(v, dtype=np.int64)]
                         for k, v in self.point_sets.items()},
             cell_sets={k: [np.array(a, copy=True) for a in v] for k, v in self.cell_sets.items()},
             node_ids=None if self.node_ids is None else self.node_ids[perm],
-            periodic=periodic,
+            periodic=mapped_periodic(self.periodic, new_of_old),
         )
 
 
-def _mapped(new_of_old: NDArray[np.int64], data: NDArray[Any]) -> NDArray[Any]:
+def mapped_connectivity(data: NDArray[Any], new_of_old: NDArray[np.int64]) -> NDArray[Any]:
     """Connectivity with node indices mapped; ragged (object) blocks cell by cell."""
     if data.dtype != object:
         return new_of_old[data]
     out = np.empty(len(data), dtype=object)
     out[:] = [new_of_old[np.asarray(c, dtype=np.int64)] for c in data]
+    return out
+
+
+def mapped_periodic(periodic: list[Any] | None,
+                    new_of_old: NDArray[np.int64]) -> list[Any] | None:
+    """gmsh periodic entities with their node pairs (the last item) mapped."""
+    if periodic is None:
+        return None
+    out = []
+    for entry in periodic:
+        entry = list(entry)
+        entry[-1] = new_of_old[np.asarray(entry[-1], dtype=np.int64)]
+        out.append(entry)
     return out
 
 
