@@ -162,6 +162,12 @@ class SupportSet:
         """Number of nodes with at least one held DOF."""
         return int(np.count_nonzero(self.fixed))
 
+    def combined(self, other: SupportSet | None) -> SupportSet:
+        """Both sets of supports together (a DOF held by either is held)."""
+        if other is None or not other.applied:
+            return self
+        return SupportSet(self.fixed | other.fixed, (*self.applied, *other.applied))
+
     def to_dict(self) -> list[dict[str, Any]]:
         """JSON-ready list: selector, DOFs, node and DOF counts of each support."""
         return [{"selector": a.support.describe(), "dofs": a.support.dofs,

@@ -117,6 +117,7 @@ def renumber_report_inputs(result: dict[str, Any]) -> ReportInputs:
     from ..checks import run_checks
     from ..checks.findings import Finding
     from ..rigid import zero_energy_modes
+    from ..topology import face_connected_blocks, facet_table
 
     graph, comparison = result["graph"], result["comparison"]
     if "matrix" in result:
@@ -125,8 +126,9 @@ def renumber_report_inputs(result: dict[str, Any]) -> ReportInputs:
     model, layout = result["model"], result["layout"]
     equations = result.get("equations")  # the numbering after renumbering, supports held
     held = None if equations is None else equations.supports
-    modes = zero_energy_modes(model, layout, held, graph)
-    findings = run_checks(model, graph)
+    table = facet_table(model)  # shared by the modes and the checks
+    modes = zero_energy_modes(model, layout, held, graph, face_connected_blocks(model, table)[1])
+    findings = run_checks(model, graph, table=table)
     if held is not None and held.applied and modes.n_body_modes:
         findings = [Finding("supports.free_modes", "error", modes.n_body_modes,
                             f"the supports leave {modes.n_body_modes} rigid-body or mechanism "

@@ -168,10 +168,7 @@ def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
     boundary-condition cards of a solver deck); they add to the options'.
     ``labels`` are the face-connected blocks, if already found.
     """
-    supports = apply_supports(model, layout, list(request.supports))
-    if file_supports is not None and file_supports.applied:
-        supports = SupportSet(supports.fixed | file_supports.fixed,
-                              (*supports.applied, *file_supports.applied))
+    supports = apply_supports(model, layout, list(request.supports)).combined(file_supports)
     with step(progress, "finding zero-energy modes"):
         analysis = zero_energy_modes(model, layout, supports, graph, labels)
     with step(progress, "numbering equations"):
@@ -228,10 +225,7 @@ def renumbered_equations(model: Model, layout: DofLayout, graph: NodeGraph,
     ``supports``.  In the map, nodes are labelled by their 1-based position
     in the renumbered mesh.
     """
-    held = apply_supports(model, layout, supports)
-    if file_supports is not None and file_supports.applied:
-        held = SupportSet(held.fixed | file_supports.fixed,
-                          (*held.applied, *file_supports.applied))
+    held = apply_supports(model, layout, supports).combined(file_supports)
     before = equation_numbering(layout, held.fixed, None, graph)
     after = equation_numbering(layout, held.fixed, perm, graph)
     if dof_map is not None:
