@@ -26,7 +26,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import MeshReadError
-from .deck import Deck, DeckElements, ListRewrite, NodeRefs
+from .deck import Deck, ListRewrite, NodeRefs, assembled_deck
 
 #: Component digits of the bulk format -> bandwise DOF names.
 DOF_OF_COMPONENT = {"1": "ux", "2": "uy", "3": "uz", "4": "rx", "5": "ry", "6": "rz"}
@@ -696,21 +696,7 @@ def parse_bulk_deck(text: str, source: str = "deck", folder: Path | None = None)
         st.supports.extend((n, dofs) for n in st.node_sets[name])
     if not st.node_ids:
         raise MeshReadError(f"{source}: no GRID cards found: not a bulk-data deck, or an empty one")
-    ids = np.asarray(st.node_ids, dtype=np.int64)
-    uniq, counts = np.unique(ids, return_counts=True)
-    if (counts > 1).any():
-        raise MeshReadError(f"{source}: GRID {int(uniq[counts > 1][0])} is defined twice")
-    elements = [DeckElements(name, cell, np.asarray(eids, dtype=np.int64),
-                             np.concatenate(conn).astype(np.int64, copy=False))
-                for (name, cell), (eids, conn) in st.elements.items()]
-    by_id = np.argsort(ids, kind="stable")  # a deck numbers its nodes by id, not by place
-    return Deck(path=source, kind="bulk", lines=lines, node_ids=ids[by_id],
-                points=np.concatenate(st.coords).reshape(-1, 3)[by_id],
-                elements=elements,
-                node_sets={k: np.asarray(v, dtype=np.int64) for k, v in st.node_sets.items()},
-                supports=st.supports, links=st.links, loads=st.loads, refs=st.refs,
-                list_rewrites=rewrites, unhandled=st.unhandled, includes=st.includes,
-                notes=st.notes)
+    return assembled_deck(source, "bulk", lines, st, rewrites, "GRID {id} is defined twice")
 
 
 def _card_lines(card: Card) -> tuple[int, ...]:

@@ -279,6 +279,32 @@ class Deck:
         return model
 
 
+def assembled_deck(source: str, kind: str, lines: list, state: object,
+                   list_rewrites: list, duplicate: str) -> Deck:
+    """The :class:`Deck` of a finished read, nodes put in the order of their ids.
+
+    ``state`` is a reader's state (node ids and coordinates, elements, node
+    sets, supports, links, loads, node references ...); ``duplicate`` is the
+    message for an id defined twice, with ``{id}`` in it.
+    """
+    st = state
+    ids = np.asarray(st.node_ids, dtype=np.int64)
+    uniq, counts = np.unique(ids, return_counts=True)
+    if (counts > 1).any():
+        raise MeshReadError(f"{source}: " + duplicate.format(id=int(uniq[counts > 1][0])))
+    elements = [DeckElements(name, cell, np.asarray(eids, dtype=np.int64),
+                             np.concatenate(conn).astype(np.int64, copy=False))
+                for (name, cell), (eids, conn) in st.elements.items()]
+    by_id = np.argsort(ids, kind="stable")  # a deck numbers its nodes by id, not by place
+    return Deck(path=source, kind=kind, lines=lines, node_ids=ids[by_id],
+                points=np.concatenate(st.coords).reshape(-1, 3)[by_id],
+                elements=elements,
+                node_sets={k: np.asarray(v, dtype=np.int64) for k, v in st.node_sets.items()},
+                supports=st.supports, links=st.links, loads=st.loads, refs=st.refs,
+                list_rewrites=list_rewrites, unhandled=st.unhandled, includes=st.includes,
+                notes=st.notes)
+
+
 def new_ids(node_ids: NDArray[np.integer], perm: NDArray[np.integer]) -> dict[int, int]:
     """The new id of every old node id for a renumbering ``perm`` (``perm[new] = old``).
 

@@ -21,7 +21,7 @@ import numpy as np
 
 from ..errors import MeshReadError
 from .columns import Table, comma_table, data_runs
-from .deck import Deck, DeckElements, ListRewrite, NodeRefs
+from .deck import Deck, ListRewrite, NodeRefs, assembled_deck
 
 #: DOF numbers of the keyword format -> bandwise DOF names.
 DOF_OF_NUMBER = {1: "ux", 2: "uy", 3: "uz", 4: "rx", 5: "ry", 6: "rz", 11: "t"}
@@ -508,19 +508,7 @@ def parse_keyword_deck(text: str, source: str = "deck", folder: Path | None = No
     _Reader(lines, st, True, folder or Path(".")).run()
     if not st.node_ids:
         raise MeshReadError(f"{source}: no *NODE data found: not a keyword deck, or an empty one")
-    ids = np.asarray(st.node_ids, dtype=np.int64)
-    uniq, counts = np.unique(ids, return_counts=True)
-    if (counts > 1).any():
-        raise MeshReadError(f"{source}: node id {int(uniq[counts > 1][0])} is defined twice "
-                            "(decks whose parts each number their nodes from 1 are not supported)")
-    elements = [DeckElements(etype, cell, np.asarray(eids, dtype=np.int64),
-                             np.concatenate(conn).astype(np.int64, copy=False))
-                for (etype, cell), (eids, conn) in st.elements.items()]
-    by_id = np.argsort(ids, kind="stable")  # a deck numbers its nodes by id, not by place
-    return Deck(path=source, kind="keyword", lines=lines, node_ids=ids[by_id],
-                points=np.concatenate(st.coords).reshape(-1, 3)[by_id],
-                elements=elements,
-                node_sets={k: np.asarray(v, dtype=np.int64) for k, v in st.node_sets.items()},
-                supports=st.supports, links=st.links, loads=st.loads, refs=st.refs,
-                list_rewrites=st.list_rewrites, unhandled=st.unhandled, includes=st.includes,
-                notes=st.notes)
+    return assembled_deck(
+        source, "keyword", lines, st, st.list_rewrites,
+        "node id {id} is defined twice (decks whose parts each number their nodes from 1 "
+        "are not supported)")
