@@ -30,7 +30,6 @@ C. Geuzaine, J.-F. Remacle, "Gmsh reference manual", node ordering (prism).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
 
 import numba
 import numpy as np
@@ -58,6 +57,9 @@ for _t in CORNER_COUNT:
     for _shape in ("line", "triangle", "quad", "tetra", "hexahedron", "wedge", "pyramid"):
         if _t.startswith(_shape):
             _CORNER_SHAPE[_t] = _shape
+
+#: Bits of the one word a facet's other corner ranks are packed into, when they fit.
+_PACKED_BITS = 63
 
 #: Widest facet of any cell type (quadrilateral faces).
 MAX_FACET_NODES = 4
@@ -256,13 +258,25 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
 
     Notes
     -----
-    A compiled pass packs each facet's sorted corner tuple into one 64-bit
-    key (exactly when the node count allows, as for the triangles of a tet
-    mesh of up to 1.6 million nodes; otherwise a hash, checked afterwards);
-    one sort brings equal facets together, and a second compiled pass
-    numbers the runs and joins the cells of each run in a union-find forest,
-    which gives the face-connected blocks.  O(F log F) for F facets; the
-    facet node tuples are not stored.
+    Three compiled passes, each linear in the facet count F:
+
+    1. corners are ranked in order of first appearance in the cell list;
+       the lowest rank of a facet's corners is its *lead*, and the facets of
+       each lead are counted;
+    2. a second walk over the cells puts each facet into the bucket of its
+       lead (a counting sort), as its other ranks: packed exactly into one
+       64-bit word when they fit (the faces of a tetrahedral mesh of up to
+       2**31 nodes, of a hexahedral one of up to 2**21), else one rank a
+       column;
+    3. each bucket (a few dozen facets: those whose lowest corner is one
+       node) is sorted on its own, equal facets are runs, and the cells of a
+       run are joined in a union-find forest, which gives the face-connected
+       blocks.
+
+    Ranking by first appearance makes the work follow the cell order, which
+    in a generated mesh is spatially coherent even when the node numbering
+    is not: the buckets touched by consecutive cells are close together in
+    memory.  The facet node tuples are not stored.
     """
     if coupling is None:
         coupling = coupling_cells(model)
@@ -277,20 +291,29 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
             entries.append((bi, np.flatnonzero(use).astype(np.int64), local))
     counts = [rows.size * len(local) for _, rows, local in entries]
     starts = np.cumsum([0] + counts).astype(np.int64)
+    n_facets = int(starts[-1])
     width = max((int((local >= 0).sum(axis=1).max()) for _, _, local in entries), default=1)
+    slots = max(width - 1, 1)
     bits = max(1, int(model.n_nodes + 1).bit_length())
-    exact = width * bits <= 63
-    keys = np.empty(int(starts[-1]), dtype=np.int64)
-    for (bi, rows, local), start in zip(entries, starts[:-1]):
-        data = np.ascontiguousarray(model.cells[bi].data, dtype=np.int64)
-        _facet_keys(data, rows, local, (local >= 0).sum(axis=1).astype(np.int64), width, bits,
-                    exact, keys[start:start + rows.size * len(local)])
-    if exact:
-        index = np.arange(keys.size, dtype=np.int32 if keys.size < 2**31 else np.int64)
-        sorted_keys, order = _radix_sort(keys, index, width * bits)
-    else:
-        order = np.argsort(keys)
-        sorted_keys = keys[order]
+    packed = slots * bits <= _PACKED_BITS
+    small = np.int32 if max(n_facets, model.n_nodes) < 2**31 else np.int64
+    rank = np.full(model.n_nodes, -1, dtype=small)
+    bucket_start = np.zeros(model.n_nodes + 1, dtype=np.int64)
+    rest = np.empty((n_facets, 1 if packed else slots), dtype=np.int64)
+    idx = np.empty(n_facets, dtype=small)
+    blocks = [(np.ascontiguousarray(model.cells[bi].data, dtype=np.int64), rows, local,
+               (local >= 0).sum(axis=1).astype(np.int64), start)
+              for (bi, rows, local), start in zip(entries, starts[:-1])]
+    next_rank = 0
+    for data, rows, local, widths, start in blocks:  # pass 1: ranks, bucket sizes
+        next_rank = _facet_pass(data, rows, local, widths, slots, bits, packed, rank, next_rank,
+                                bucket_start, False, rest, idx, start)
+    bucket_start = np.cumsum(bucket_start[:next_rank + 1])
+    fill = bucket_start[:-1].copy()
+    for data, rows, local, widths, start in blocks:  # pass 2: facets into their buckets
+        _facet_pass(data, rows, local, widths, slots, bits, packed, rank, next_rank, fill, True,
+                    rest, idx, start)
+    del rank, fill, blocks
     n_cells = int(offsets[-1])
     enf = np.array([len(local) for _, _, local in entries] or [1], dtype=np.int64)
     ecells = np.concatenate([offsets[bi] + rows for bi, rows, _ in entries] or
@@ -300,10 +323,9 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
     ebase = np.array([offsets[bi] if rows.size == len(model.cells[bi].data) else -1
                       for bi, rows, _ in entries] or [0], dtype=np.int64)
     parent = np.arange(n_cells, dtype=np.int64)
-    if not exact:
-        sorted_keys, order = _checked_runs(model, entries, keys, order)
-    mult, free = _runs(sorted_keys, order, starts, enf, ecells, erow0, ebase, parent)
-    coupled = np.zeros(int(offsets[-1]), dtype=np.bool_)
+    mult, free = _bucket_runs(bucket_start, rest, idx, starts, enf, ecells, erow0, ebase,
+                              parent)
+    coupled = np.zeros(n_cells, dtype=np.bool_)
     for (bi, rows, _) in entries:
         coupled[offsets[bi] + rows] = True
     labels, n_blocks = _compact_roots(parent, coupled)
@@ -312,137 +334,202 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
                       np.sort(free), mult, labels, int(n_blocks))
 
 
+@numba.njit(cache=True, nogil=True, inline="always")
+def _sorted_ranks(cr, local, j, k, t):  # pragma: no cover - compiled
+    """The ranks of facet ``j``'s ``k`` corners, ascending, into ``t[:k]``.
+
+    Sorting networks of min/max (no data-dependent branch: facet corner
+    ranks are in random order, and mispredicted branches of an insertion
+    sort cost more than the rest of the pass).
+    """
+    if k == 3:
+        a, b, c = cr[local[j, 0]], cr[local[j, 1]], cr[local[j, 2]]
+        lo, hi = min(a, b), max(a, b)
+        t[0], t[2] = min(lo, c), max(hi, c)
+        t[1] = max(lo, min(hi, c))
+    elif k == 4:
+        a, b, c, d = cr[local[j, 0]], cr[local[j, 1]], cr[local[j, 2]], cr[local[j, 3]]
+        a, b = min(a, b), max(a, b)
+        c, d = min(c, d), max(c, d)
+        a, c = min(a, c), max(a, c)
+        b, d = min(b, d), max(b, d)
+        t[0], t[1], t[2], t[3] = a, min(b, c), max(b, c), d
+    elif k == 2:
+        a, b = cr[local[j, 0]], cr[local[j, 1]]
+        t[0], t[1] = min(a, b), max(a, b)
+    else:
+        t[0] = cr[local[j, 0]]
+
+
 @numba.njit(cache=True, nogil=True)
-def _facet_keys(data, rows, local, widths, width, bits, exact, out):  # pragma: no cover
-    """Sorted corner tuple of every facet of one block, packed (or hashed) into ``out``."""
+def _facet_pass(data, rows, local, widths, slots, bits, packed, rank, next_rank, fill, scatter,
+                rest, idx, out0):  # pragma: no cover - compiled
+    """One pass over the facets of one block, in cell order (passes 1 and 2 of :func:`facet_table`).
+
+    Each facet's corner ranks are sorted; the lowest is its *lead*.  Without
+    ``scatter`` (pass 1), corners not yet ranked get ``next_rank, next_rank
+    + 1, ...`` in order of first appearance and ``fill[lead + 1]`` counts the
+    facets of each lead.  With ``scatter`` (pass 2, ``fill`` now the next
+    free slot of each lead's bucket), the facet's other ranks (+1, so that 0
+    pads narrower facets on the left; packed ``bits`` apiece into one word,
+    or one rank a column) go to ``rest`` and its index to ``idx`` at that
+    slot.  Returns the next unused rank.
+    """
     nf = local.shape[0]
+    nc = 0
+    for j in range(nf):
+        for a in range(widths[j]):
+            nc = max(nc, local[j, a] + 1)
     t = np.empty(4, dtype=np.int64)
+    cr = np.empty(nc, dtype=np.int64)
+    c = next_rank
     for ri in range(rows.size):
         e = rows[ri]
+        for a in range(nc):  # each corner looked up once per cell
+            v = data[e, a]
+            r = np.int64(rank[v])
+            if r < 0:
+                r = c
+                rank[v] = c
+                c += 1
+            cr[a] = r
         for j in range(nf):
             k = widths[j]
-            for a in range(4 - k):
-                t[a] = 0
-            for a in range(k):  # insertion sort of the corners (+1) into t[4-k:]
-                v = data[e, local[j, a]] + 1
-                pos = 4 - k + a
-                while pos > 4 - k and t[pos - 1] > v:
-                    t[pos] = t[pos - 1]
-                    pos -= 1
-                t[pos] = v
-            h = 0
-            if exact:
-                for a in range(4 - width, 4):
-                    h = (h << bits) | t[a]
+            _sorted_ranks(cr, local, j, k, t)
+            if not scatter:
+                fill[t[0] + 1] += 1
+                continue
+            p = fill[t[0]]
+            fill[t[0]] = p + 1
+            idx[p] = out0 + ri * nf + j
+            if packed:
+                h = 0
+                for a in range(1, k):
+                    h = (h << bits) | (t[a] + 1)
+                rest[p, 0] = h
             else:
-                h = 0x27D4EB2F165667C5
-                for a in range(4):
-                    h = _mix(h, t[a])
-            out[ri * nf + j] = h
+                pad = slots - (k - 1)
+                for a in range(pad):
+                    rest[p, a] = 0
+                for a in range(1, k):
+                    rest[p, pad + a - 1] = t[a] + 1
+    return c
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _row_equal(rows, i, j):  # pragma: no cover - compiled
+    for a in range(rows.shape[1]):
+        if rows[i, a] != rows[j, a]:
+            return False
+    return True
 
 
 @numba.njit(cache=True, nogil=True)
-def _runs(sorted_keys, order, starts, enf, ecells, erow0, ebase, parent):  # pragma: no cover
-    """Walk the runs of equal sorted keys: sizes, free facets, cells joined per run.
+def _sort_bucket(rows, idx, lo, hi, tmp):  # pragma: no cover - compiled
+    """Shell sort of ``rows[lo:hi]`` (lexicographic) with ``idx``: insertion sort when short.
 
-    Returns the size of each run (distinct facet) and the facets alone in their run.
+    Gaps of M. Ciura, "Best increments for the average case of Shellsort",
+    FCT 2001, extended by factors of 2.25: buckets are short, but a node
+    shared by very many cells must not cost a quadratic sort.
     """
-    n = order.size
+    n = hi - lo
+    if n <= 48:
+        _gapped_insertion(rows, idx, lo, hi, 1, tmp)
+        return
+    gaps = np.empty(64, dtype=np.int64)
+    k = 0
+    for g in (1, 4, 10, 23, 57, 132, 301, 701, 1750):
+        if g < n:
+            gaps[k] = g
+            k += 1
+    g = 1750
+    while k >= 9:
+        g = g * 9 // 4
+        if g >= n:
+            break
+        gaps[k] = g
+        k += 1
+    for q in range(k - 1, -1, -1):
+        _gapped_insertion(rows, idx, lo, hi, gaps[q], tmp)
+
+
+@numba.njit(cache=True, nogil=True)
+def _gapped_insertion(rows, idx, lo, hi, gap, tmp):  # pragma: no cover - compiled
+    w = rows.shape[1]
+    if w == 1:  # packed keys: scalar comparisons (the common case, about twice as fast)
+        for a in range(lo + gap, hi):
+            key, ti = rows[a, 0], idx[a]
+            q = a
+            while q - gap >= lo and rows[q - gap, 0] > key:
+                rows[q, 0] = rows[q - gap, 0]
+                idx[q] = idx[q - gap]
+                q -= gap
+            rows[q, 0] = key
+            idx[q] = ti
+        return
+    for a in range(lo + gap, hi):
+        for c in range(w):
+            tmp[c] = rows[a, c]
+        ti = idx[a]
+        q = a
+        while q - gap >= lo:
+            less = False
+            for c in range(w):
+                if tmp[c] != rows[q - gap, c]:
+                    less = tmp[c] < rows[q - gap, c]
+                    break
+            if not less:
+                break
+            for c in range(w):
+                rows[q, c] = rows[q - gap, c]
+            idx[q] = idx[q - gap]
+            q -= gap
+        for c in range(w):
+            rows[q, c] = tmp[c]
+        idx[q] = ti
+
+
+@numba.njit(cache=True, nogil=True)
+def _bucket_runs(bucket_start, rows, idx, starts, enf, ecells, erow0, ebase,
+                 parent):  # pragma: no cover - compiled
+    """Sort each bucket, walk its runs of equal facets (pass 3).
+
+    Returns the size of each run (distinct facet) and the facets alone in
+    their run; joins the owning cells of each run in ``parent``.
+    """
+    n = idx.size
     mult = np.zeros(n, dtype=np.int32)
-    free = np.empty(n, dtype=order.dtype)
+    free = np.empty(n, dtype=idx.dtype)
+    tmp = np.empty(rows.shape[1], dtype=np.int64)
     n_free = 0
     g = -1
-    first = 0
-    run_start = 0
-    for i in range(n + 1):
-        if i == n or i == 0 or sorted_keys[i] != sorted_keys[i - 1]:
-            if i > 0 and i - run_start == 1:
-                free[n_free] = order[run_start]
-                n_free += 1
-            if i == n:
-                break
-            g += 1
-            run_start = i
-        f = order[i]
-        e = 0
-        while f >= starts[e + 1]:
-            e += 1
-        r = (f - starts[e]) // enf[e]
-        cell = ebase[e] + r if ebase[e] >= 0 else ecells[erow0[e] + r]
-        if i == run_start:
-            first = cell
-        else:
-            _union(parent, first, cell)
-        mult[g] += 1
-    return mult[:g + 1].astype(np.int64), free[:n_free].astype(np.int64)
-
-
-#: Radix digit of :func:`_radix_sort`: 11 bits, so 2048 buckets (their counts fit in L1).
-_DIGIT = 11
-_BUCKETS = 1 << _DIGIT
-
-
-@numba.njit(cache=True, nogil=True)
-def _radix_sort(keys, index, key_bits):  # pragma: no cover - compiled
-    """Sort non-negative ``keys`` below ``2**key_bits`` and ``index`` with them, in place.
-
-    Most-significant-digit radix sort, 11 bits a pass, insertion sort for
-    small buckets, the data moving between two buffers (no copy back): the
-    first pass writes 2048 streams and later passes work on pieces that fit
-    in cache, which matters more here than the operation count.
-    """
-    n = keys.size
-    a_k, a_i = keys, index  # the result ends in these
-    b_k, b_i = np.empty_like(a_k), np.empty_like(a_i)
-    size = 8 * _BUCKETS
-    stack_lo = np.empty(size, dtype=np.int64)
-    stack_hi = np.empty(size, dtype=np.int64)
-    stack_shift = np.empty(size, dtype=np.int64)
-    stack_in_b = np.empty(size, dtype=np.bool_)
-    stack_lo[0], stack_hi[0], stack_shift[0], stack_in_b[0] = 0, n, max(key_bits - _DIGIT, 0), False
-    top = 1
-    count = np.empty(_BUCKETS + 1, dtype=np.int64)
-    while top > 0:
-        top -= 1
-        lo, hi, shift, in_b = stack_lo[top], stack_hi[top], stack_shift[top], stack_in_b[top]
-        src_k, src_i = (b_k, b_i) if in_b else (a_k, a_i)
-        dst_k, dst_i = (a_k, a_i) if in_b else (b_k, b_i)
-        if hi - lo <= 32:  # insertion sort, landing in the result buffer
-            for a in range(lo, hi):
-                k, i = src_k[a], src_i[a]
-                q = a
-                while q > lo and a_k[q - 1] > k:
-                    a_k[q] = a_k[q - 1]
-                    a_i[q] = a_i[q - 1]
-                    q -= 1
-                a_k[q] = k
-                a_i[q] = i
-            continue
-        count[:] = 0
-        for j in range(lo, hi):
-            count[((src_k[j] >> shift) & (_BUCKETS - 1)) + 1] += 1
-        for d in range(_BUCKETS):
-            count[d + 1] += count[d]
-        for j in range(lo, hi):
-            d = (src_k[j] >> shift) & (_BUCKETS - 1)
-            p = lo + count[d]
-            dst_k[p] = src_k[j]
-            dst_i[p] = src_i[j]
-            count[d] += 1
-        prev = lo
-        for d in range(_BUCKETS):  # count[d] is now the end of digit d
-            end = lo + count[d]
-            if shift == 0 or end - prev <= 1:  # sorted: make sure it is in the result
-                if in_b is False:  # the data went to b
-                    for q in range(prev, end):
-                        a_k[q] = b_k[q]
-                        a_i[q] = b_i[q]
+    for b in range(bucket_start.size - 1):
+        lo, hi = bucket_start[b], bucket_start[b + 1]
+        if hi - lo > 1:
+            _sort_bucket(rows, idx, lo, hi, tmp)
+        run_start = lo
+        first = 0
+        for i in range(lo, hi + 1):
+            if i == hi or i == lo or not _row_equal(rows, i, i - 1):
+                if i > lo and i - run_start == 1:
+                    free[n_free] = idx[run_start]
+                    n_free += 1
+                if i == hi:
+                    break
+                g += 1
+                run_start = i
+            f = idx[i]
+            e = 0
+            while f >= starts[e + 1]:
+                e += 1
+            r = (f - starts[e]) // enf[e]
+            cell = ebase[e] + r if ebase[e] >= 0 else ecells[erow0[e] + r]
+            if i == run_start:
+                first = cell
             else:
-                stack_lo[top], stack_hi[top] = prev, end
-                stack_shift[top], stack_in_b[top] = max(shift - _DIGIT, 0), not in_b
-                top += 1
-            prev = end
-    return a_k, a_i
+                _union(parent, first, cell)
+            mult[g] += 1
+    return mult[:g + 1].astype(np.int64), free[:n_free].astype(np.int64)
 
 
 @numba.njit(cache=True, nogil=True)
@@ -474,28 +561,6 @@ def _union(parent, a, b):  # pragma: no cover - compiled
         parent[rb] = ra
     elif rb < ra:
         parent[ra] = rb
-
-
-def _checked_runs(model: Model, entries: list[Any], keys: NDArray[np.int64],
-                  order: NDArray[np.int64]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """Dense run keys for hashed keys: equal tuples checked, collisions resolved."""
-    tuples = []
-    for bi, rows, _ in entries:
-        nodes, _ = facets(model.cells[bi].type, model.cells[bi].data[rows])
-        pad = MAX_FACET_NODES - nodes.shape[1]
-        if pad:
-            nodes = np.concatenate([nodes, np.full((len(nodes), pad), -1, np.int64)], axis=1)
-        tuples.append(np.sort(nodes, axis=1))
-    t = np.concatenate(tuples)
-    sorted_t = t[order]
-    sorted_k = keys[order]
-    new = np.ones(len(order), dtype=bool)
-    new[1:] = (sorted_k[1:] != sorted_k[:-1]) | (sorted_t[1:] != sorted_t[:-1]).any(axis=1)
-    if (new[1:] & (sorted_k[1:] == sorted_k[:-1])).any():  # a hash collision
-        order = np.lexsort(t.T[::-1])
-        sorted_t = t[order]
-        new[1:] = (sorted_t[1:] != sorted_t[:-1]).any(axis=1)
-    return np.cumsum(new) - 1, order
 
 
 @numba.njit(cache=True, nogil=True)

@@ -14,6 +14,7 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
+from bandwise import topology
 from bandwise.generate import hex_grid, quad_grid, tet_grid, triangle_grid
 from bandwise.model import CellBlock, Model
 from bandwise.topology import (
@@ -180,3 +181,40 @@ def test_facets_and_blocks_match_a_slow_reference(seed, n_cells, n_nodes):
     assert n == len(comps)
     assert {frozenset(np.flatnonzero(labels[0] == k).tolist()) for k in range(n)} == \
         {frozenset(c) for c in comps}
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(1, 12), st.integers(1, 12), st.booleans())
+def test_mixed_facets_match_a_slow_reference_packed_or_not(seed, n_hex, n_wedge, packed):
+    # The facet table against a brute-force dictionary of facet node sets
+    # (networkx for the blocks), for hexahedra and wedges sharing random
+    # nodes, with the facets' corner ranks packed into one word or kept as
+    # rows of ranks (the path of hexahedral meshes of over 2**21 nodes).
+    import networkx as nx
+
+    rng = np.random.default_rng(seed)
+    n_nodes = 10
+    hexes = np.array([rng.choice(n_nodes, 8, replace=False) for _ in range(n_hex)])
+    wedges = np.array([rng.choice(n_nodes, 6, replace=False) for _ in range(n_wedge)])
+    model = Model(points=rng.random((n_nodes, 3)),
+                  cells=[CellBlock("hexahedron", hexes), CellBlock("wedge", wedges)])
+    owners: dict[frozenset, list[int]] = {}
+    for offset, (shape, cells) in enumerate((("hexahedron", hexes), ("wedge", wedges))):
+        base = 0 if offset == 0 else n_hex
+        for c, row in enumerate(cells):
+            for face in local_facets(shape):
+                owners.setdefault(frozenset(row[list(face)].tolist()), []).append(base + c)
+    g = nx.Graph()
+    g.add_nodes_from(range(n_hex + n_wedge))
+    for cs in owners.values():
+        g.add_edges_from((cs[0], other) for other in cs[1:])
+    comps = {frozenset(c) for c in nx.connected_components(g)}
+    saved = topology._PACKED_BITS
+    topology._PACKED_BITS = 63 if packed else 0
+    try:
+        t = facet_table(model)
+    finally:
+        topology._PACKED_BITS = saved
+    assert sorted(t.multiplicity.tolist()) == sorted(len(v) for v in owners.values())
+    assert len(t.free) == sum(1 for v in owners.values() if len(v) == 1)
+    labels = np.concatenate(face_connected_blocks(model, t)[1])
+    assert {frozenset(np.flatnonzero(labels == k).tolist()) for k in range(t.n_blocks)} == comps
