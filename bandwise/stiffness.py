@@ -142,12 +142,16 @@ def space_frame_local(length: NDArray[np.float64], ea: float = YOUNG * AREA,
     return k
 
 
-def space_frame_stiffness(x: NDArray[np.float64]) -> NDArray[np.float64]:
+def space_frame_stiffness(x: NDArray[np.float64], ea: float = YOUNG * AREA,
+                          gj: float = YOUNG / (2 * (1 + POISSON)) * TORSION,
+                          eiy: float = YOUNG * INERTIA, eiz: float = YOUNG * INERTIA,
+                          ) -> NDArray[np.float64]:
     """Space frame element in global axes over (ux, uy, uz, rx, ry, rz) at both ends.
 
     The local y axis is normal to the member and to global z (to global y for
     a vertical member); with equal bending inertias the choice does not change
-    the matrix's rank.
+    the matrix's rank. ``ea``, ``gj``, ``eiy``, ``eiz`` are the section
+    rigidities of :func:`space_frame_local` (default: unit material).
     """
     d = x[:, 1] - x[:, 0]
     length = np.linalg.norm(d, axis=1)
@@ -162,7 +166,7 @@ def space_frame_stiffness(x: NDArray[np.float64]) -> NDArray[np.float64]:
     t = np.zeros((len(x), 12, 12))
     for o in range(0, 12, 3):
         t[:, o:o + 3, o:o + 3] = lam
-    k = space_frame_local(length)
+    k = space_frame_local(length, ea=ea, gj=gj, eiy=eiy, eiz=eiz)
     return np.einsum("mji,mjk,mkl->mil", t, k, t)
 
 
