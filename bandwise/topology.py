@@ -29,6 +29,7 @@ C. Geuzaine, J.-F. Remacle, "Gmsh reference manual", node ordering (prism).
 
 from __future__ import annotations
 
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numba
@@ -332,6 +333,22 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
     return FacetTable(model, np.array([e[0] for e in entries], dtype=np.int64),
                       tuple(e[1] for e in entries), tuple(e[2] for e in entries), starts,
                       np.sort(free), mult, labels, int(n_blocks))
+
+
+def facet_table_in_background(model: Model, coupling: list[NDArray[np.bool_]] | None = None,
+                              ) -> Future[FacetTable]:
+    """Start :func:`facet_table` on a second thread and return its future.
+
+    The table's compiled passes release the interpreter lock, so other work
+    (the checks that do not need it, the node graph) runs meanwhile on
+    another core.  ``future.result()`` gives the table or raises what
+    building it raised.
+    """
+    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="bandwise-facets")
+    try:
+        return pool.submit(facet_table, model, coupling)
+    finally:
+        pool.shutdown(wait=False)
 
 
 @numba.njit(cache=True, nogil=True, inline="always")

@@ -148,3 +148,17 @@ def test_unanalysed_blocks_are_listed_not_dropped():
     model = Model(points=m.points, cells=[m.cells[0], CellBlock("polyhedron6", poly)])
     found = _codes(model)
     assert found["mesh.skipped_blocks"].where == ("polyhedron6 (1 cells)",)
+
+
+def test_facet_table_built_on_a_second_thread_gives_the_same_findings(monkeypatch):
+    # Same mesh, same findings (and order) whether the facet table is built
+    # alongside the other checks or before them: the run order of the checks
+    # must not leak into the result (common practice for a concurrent step).
+    import bandwise.checks as checks
+
+    model = _cube_and_copy((1, 1, 1), {0: 7})
+    before = [f.to_dict() for f in run_checks(model)]
+    monkeypatch.setattr(checks, "BACKGROUND_TABLE_CELLS", 0)
+    threaded = [f.to_dict() for f in run_checks(model)]
+    assert threaded == before
+    assert "joints.single_node" in [f["code"] for f in threaded]
