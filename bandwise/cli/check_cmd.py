@@ -25,7 +25,7 @@ from ..graph import node_graph
 from ..progress import StderrProgress, step
 from ..summary import MeshSummary, summarise
 from ..tables import human_bytes, human_count, render_table
-from ..topology import face_connected_blocks, facet_table
+from ..topology import face_connected_blocks, facet_table_in_background
 from . import (
     CAUTION,
     EXIT_FINDINGS,
@@ -161,11 +161,12 @@ def check(
         options = base_options if deck is None else dataclasses.replace(
             base_options, links=tuple(deck_links(deck)))
         layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
+        pending = facet_table_in_background(model)  # meanwhile: the graph and the summary
         with step(progress, "building node graph"):
             graph = node_graph(model) if deck is None else deck_graph(deck, model)
         results.append(summarise(model, layout, graph=graph, progress=progress))
         with step(progress, "matching element facets"):  # shared by the checks and the modes
-            table = facet_table(model)
+            table = pending.result()
             _, labels = face_connected_blocks(model, table)
         reports.append(analyse_supports(
             model, layout, graph, request, progress,
