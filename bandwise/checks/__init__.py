@@ -16,6 +16,8 @@ plus hanging nodes (:mod:`.hanging`) and the cell blocks not analysed.
 from __future__ import annotations
 
 from collections.abc import Callable
+from concurrent.futures import Future, ThreadPoolExecutor
+from typing import Any
 
 import numpy as np
 
@@ -23,7 +25,7 @@ from ..graph import NodeGraph, node_graph
 from ..meshio_io import skipped_blocks
 from ..model import Model
 from ..progress import Progress, step
-from ..topology import FacetTable, facet_table_in_background
+from ..topology import FacetTable
 from .coincident import check_coincident
 from .context import CheckContext, CheckOptions
 from .elements import check_elements
@@ -53,10 +55,10 @@ CHECKS: tuple[tuple[str, Callable[[CheckContext], list[Finding]]], ...] = (
 #: The checks that read the facet table; the others run while it is built.
 NEED_TABLE = frozenset({check_joints, check_free_facets, check_hanging_nodes})
 
-#: Cells from which the facet table is built on a second thread while the
-#: other checks run (its compiled passes release the interpreter lock): on
-#: the million-node benchmark box the checks take about 30 % less wall time
-#: on two cores.  Below this the thread is not worth starting.
+#: Cells from which the checks that need the facet table (and the table, if
+#: not given) run on a second thread while the others run (their compiled
+#: passes release the interpreter lock).  Below this a thread is not worth
+#: starting.
 BACKGROUND_TABLE_CELLS = 100_000
 
 
@@ -101,22 +103,39 @@ def run_checks(model: Model, graph: NodeGraph | None = None,
             "bandwise does not analyse, or no cells at all): there is nothing to solve"))
         findings += check_orphans(ctx)
         return _sorted(findings)
-    pending = None
     if table is not None:
         ctx.__dict__["table"] = table  # the cached property, given
-    elif model.n_cells >= BACKGROUND_TABLE_CELLS:
-        pending = facet_table_in_background(model, ctx.coupling)
     found: dict[str, list[Finding]] = {}
-    # the checks that do not need the facet table first, while it is being built
-    for label, check in sorted(CHECKS, key=lambda c: c[1] in NEED_TABLE):
-        if pending is not None and check in NEED_TABLE:
-            ctx.__dict__["table"] = pending.result()
-            pending = None
-        with step(progress, label):
-            found[label] = check(ctx)
+    later = [(label, check) for label, check in CHECKS if check in NEED_TABLE]
+    pending = None
+    if model.n_cells >= BACKGROUND_TABLE_CELLS:
+        ctx.coupling  # noqa: B018  computed once, before the threads share it
+        pending = _in_background(_run_table_checks, ctx, later)
+    for label, check in CHECKS:
+        if pending is None or check not in NEED_TABLE:
+            with step(progress, label):
+                found[label] = check(ctx)
+    if pending is not None:
+        with step(progress, "matching element facets; " + ", ".join(
+                label.removeprefix("checking ") for label, _ in later)):
+            found.update(pending.result())
     for label, _ in CHECKS:  # findings in check order, whatever the run order
         findings += found[label]
     return _sorted(findings)
+
+
+def _run_table_checks(ctx: CheckContext, checks: list[tuple[str, Callable[[CheckContext],
+                      list[Finding]]]]) -> dict[str, list[Finding]]:
+    """The checks that need the facet table (built first, if not given), in order."""
+    return {label: check(ctx) for label, check in checks}
+
+
+def _in_background(func: Callable[..., Any], *args: Any) -> Future[Any]:
+    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="bandwise-checks")
+    try:
+        return pool.submit(func, *args)
+    finally:
+        pool.shutdown(wait=False)
 
 
 def _skipped(model: Model) -> list[Finding]:
