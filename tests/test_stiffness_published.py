@@ -6,8 +6,9 @@ and reactions with a tolerance of half a unit in the last printed digit.
 Invariants (symmetry, PSD, rigid motions) live in tests/test_stiffness.py.
 
 Element types with no published example reproduced here: the scalar
-conduction elements (their closed forms and hand evaluations are in
-tests/test_stiffness.py). Q4 matches Sigmund (2001) there. The space frame
+conduction line, triangle, tetrahedron and hexahedron (their closed forms and
+hand evaluations are in tests/test_stiffness.py); the scalar quad matches
+Sigmund (2001) below. The elastic Q4 matches Sigmund (2001) there. The space frame
 reproduces the plane beam example in both bending planes; the tetrahedron is
 checked against a reference library's expected matrix.
 """
@@ -218,3 +219,23 @@ def test_tetrahedron_matches_reference_library_integers() -> None:
     ke = continuum_stiffness("tetra", x[None], elasticity=elasticity_matrix(3, 96.0, 1.0 / 3.0))[0]
     # printed as integers: half a unit would be 0.5; the match is exact to round-off
     np.testing.assert_allclose(ke, expected, rtol=0, atol=1e-9)
+
+
+def test_scalar_quad_matches_sigmund_heat_conduction_ke() -> None:
+    # O. Sigmund, "A 99 line topology optimization code written in Matlab",
+    # Struct. Multidisc. Optim. 21 (2001) 120-127, the heat-conduction variant:
+    # the unit-square bilinear element's conductivity matrix with unit
+    # conductivity is KE = [2/3 -1/6 -1/3 -1/6; ...] (corners in cyclic order).
+    # Fractions read from a public transcription of that routine
+    # (lk_heat_conduction); its place in the paper is from memory. bandwise's
+    # quad corners are also cyclic (counterclockwise), so the matrices coincide.
+    expected = np.array([[2 / 3, -1 / 6, -1 / 3, -1 / 6],
+                         [-1 / 6, 2 / 3, -1 / 6, -1 / 3],
+                         [-1 / 3, -1 / 6, 2 / 3, -1 / 6],
+                         [-1 / 6, -1 / 3, -1 / 6, 2 / 3]])
+    x = np.array([[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]])
+    ke = continuum_stiffness("quad", x[None], scalar=True)[0]
+    np.testing.assert_allclose(ke, expected, rtol=0, atol=1e-14)
+    # the Laplace matrix does not depend on the square's size in 2D
+    ke2 = continuum_stiffness("quad", 2.5 * x[None], scalar=True)[0]
+    np.testing.assert_allclose(ke2, expected, rtol=0, atol=1e-14)
