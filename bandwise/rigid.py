@@ -529,6 +529,8 @@ def _pair_rows(space: str, dof: str, pts: NDArray[np.float64], frames: _Frames,
     """Rows (in each body's reduced coordinates) of one DOF at (node, body) pairs."""
     r = (pts[node] - frames.centroid[body]) / frames.size[body][:, None]
     rows = _motion_rows(space, dof, r)
+    if dof[0] == "r":   # coordinate q = rotation x body size (r is scaled): a rotation is q / size
+        rows = rows / frames.size[body][:, None]
     return np.einsum("pm,pmk->pk", rows, frames.basis[body])
 
 
@@ -631,9 +633,84 @@ def _sparse_null_space(a: sp.csr_matrix) -> NDArray[np.float64] | None:
 # --------------------------------------------------------------------------- analysis
 
 
+# --------------------------------------------------------------------------- links
+
+
+@dataclass(frozen=True)
+class Link:
+    """A rigid link or multi-point constraint of the input, for the analysis.
+
+    Attributes
+    ----------
+    kind
+        ``"rigid"`` (the nodes move as one rigid body in ``components``),
+        ``"average"`` (the reference follows a weighted average of the
+        others) or ``"general"`` (a linear equation between DOFs).
+    card
+        The card or keyword it came from (for notes).
+    nodes
+        0-based node indices, reference (independent) node first.
+    components
+        DOF mask the link ties (all DOFs by default).
+    """
+
+    kind: str
+    card: str
+    nodes: NDArray[np.int64]
+    components: int = SPACE
+
+
+def link_layout(model: Model, layout: DofLayout, links: tuple[Link, ...] | list[Link]) -> DofLayout:
+    """The layout with DOFs of their own at nodes that only rigid links use.
+
+    A node in no element (a reference node alone, which the DOF layout
+    gives translations only, as an orphan) gets 6 DOFs in 3D, 3 in
+    the plane (two translations and the in-plane rotation), as a solver
+    gives such a node (common practice).
+    """
+    rigid = [ln.nodes for ln in links if ln.kind == "rigid" and ln.nodes.size > 1]
+    if not rigid:
+        return layout
+    nodes = np.unique(np.concatenate(rigid))
+    in_cell = np.zeros(model.n_nodes, dtype=bool)
+    for b in model.cells:
+        in_cell[b.data.ravel()] = True
+    bare = nodes[~in_cell[nodes]]
+    if not bare.size:
+        return layout
+    masks = layout.masks.copy()
+    masks[bare] = PLANE_FRAME if _is_planar(model) else SPACE
+    return DofLayout(masks, layout.rule + f"; {bare.size} node(s) used only by rigid links "
+                     "carry their own DOFs", layout.unnamed)
+
+
+def _add_link_bodies(bodies: Bodies, links: list[Link], space: str, planar: bool) -> Bodies:
+    """One rigid body per rigid link, owning the link's components.
+
+    Shared nodes then give the equality constraints of the link exactly:
+    the dependent nodes follow the rigid motion of the link body in the
+    tied components, and the reference node does too.
+    """
+    full = PLANE_FRAME if space == "plane" or planar else SPACE
+    if space == "scalar":
+        full = SCALAR
+    nodes, ids, own = [bodies.node], [bodies.body], [bodies.own]
+    for k, ln in enumerate(links):
+        u = np.unique(ln.nodes)
+        nodes.append(u)
+        ids.append(np.full(u.size, bodies.n + k, dtype=np.int64))
+        own.append(np.array([int(ln.components) & full], dtype=np.int64))
+    node = np.concatenate(nodes)
+    body = np.concatenate(ids)
+    order = np.lexsort((body, node))
+    return Bodies(bodies.n + len(links), np.concatenate(own), node[order], body[order],
+                  np.concatenate([bodies.is_bar, np.zeros(len(links), dtype=bool)]))
+
+
 def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | None = None,
                       graph: NodeGraph | None = None,
-                      labels: list[NDArray[np.int64]] | None = None) -> ZeroEnergyAnalysis:
+                      labels: list[NDArray[np.int64]] | None = None,
+                      links: tuple[Link, ...] | list[Link] = ()) -> ZeroEnergyAnalysis:
     """Rigid-body and mechanism modes left free by the supports, per connected part.
 
     Parameters
@@ -649,6 +726,11 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
         callers holding the node graph may pass it.
     labels
         Face-connected block of every cell, if already computed.
+    links
+        Rigid links and constraints of the input (:class:`Link`).  Rigid
+        links join the analysis as rigid bodies of their own (exact);
+        averaging links and general equations are left out with a note.
+        Nodes used only by links need DOFs in ``layout`` (:func:`link_layout`).
 
     Returns
     -------
@@ -675,6 +757,9 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
     pts = _coordinates(model)
     extent = model_extent(pts) or 1.0
     bodies = make_bodies(model, layout, space, labels)
+    rigid_links = [ln for ln in links if ln.kind == "rigid" and np.unique(ln.nodes).size > 1]
+    if rigid_links:
+        bodies = _add_link_bodies(bodies, rigid_links, space, _is_planar(model))
     frames = _frames(pts, bodies, layout, space, extent)
     fixed = supports.fixed
     without = _dofs_without_stiffness(layout, bodies, fixed)
@@ -689,6 +774,13 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
     if bodies.is_bar.any() and space == "space":
         notes.append("pin-jointed bars: the spin of a bar about its own axis moves no DOF "
                      "and is not counted (a trivial zero mode of no practical interest)")
+    left_out: dict[str, int] = {}
+    for ln in links:
+        if ln.kind != "rigid":
+            left_out[ln.card] = left_out.get(ln.card, 0) + 1
+    for card, count in sorted(left_out.items()):
+        notes.append(f"{count} {card} link(s) not modelled in the zero-energy count (only rigid "
+                     "links are): the count may be off where they carry or hold a part")
     labels_arr = model.node_labels()[0]
     ctx = _Context(space, pts, bodies, frames, fixed, labels_arr, layout)
     parts, null_spaces = [], []

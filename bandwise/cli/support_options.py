@@ -161,16 +161,18 @@ class SupportReport:
 def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
                      request: SupportRequest, progress: Progress | None = None,
                      file_supports: SupportSet | None = None,
-                     labels: list[Any] | None = None) -> SupportReport:
+                     labels: list[Any] | None = None,
+                     links: tuple[Any, ...] | list[Any] = ()) -> SupportReport:
     """Apply the supports, find the zero-energy modes, number the equations (and check).
 
     ``file_supports`` are supports the input file itself gives (the
     boundary-condition cards of a solver deck); they add to the options'.
-    ``labels`` are the face-connected blocks, if already found.
+    ``labels`` are the face-connected blocks, if already found; ``links``
+    the input's rigid links and constraints (:class:`bandwise.rigid.Link`).
     """
     supports = apply_supports(model, layout, list(request.supports)).combined(file_supports)
     with step(progress, "finding zero-energy modes"):
-        analysis = zero_energy_modes(model, layout, supports, graph, labels)
+        analysis = zero_energy_modes(model, layout, supports, graph, labels, links)
     with step(progress, "numbering equations"):
         equations = equation_numbering(layout, supports.fixed, None, graph)
     stiffness = None

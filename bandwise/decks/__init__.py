@@ -38,7 +38,7 @@ DECK_FORMATS = {"abaqus": "keyword", "nastran": "bulk"}
 
 __all__ = [
     "DECK_EXTENSIONS", "Deck", "DeckElements", "DeckRewrite", "NodeRef", "deck_kind",
-    "deck_links", "deck_support_set", "deck_supports", "new_ids", "parse_bulk_deck", "parse_keyword_deck",
+    "deck_links", "deck_rigid_links", "deck_support_set", "deck_supports", "new_ids", "parse_bulk_deck", "parse_keyword_deck",
     "read_deck", "renumber_deck",
 ]
 
@@ -111,6 +111,29 @@ def deck_links(deck: Deck) -> list[NDArray[np.int64]]:
         if nodes.size > 1:
             by_width.setdefault(int(nodes.size), []).append(nodes)
     return [np.vstack(group) for _, group in sorted(by_width.items())]
+
+
+_RIGID_CARDS = frozenset({"RBE2", "RBAR", "RIGID BODY", "KINEMATIC COUPLING"})
+_AVERAGE_CARDS = frozenset({"RBE3", "DISTRIBUTING COUPLING"})
+
+
+def deck_rigid_links(deck: Deck):  # -> list[bandwise.rigid.Link]
+    """The deck's links for the zero-energy analysis, reference node first.
+
+    RBE2, RBAR, ``*RIGID BODY`` and ``*KINEMATIC COUPLING`` are rigid links
+    (tying all DOFs); RBE3 and ``*DISTRIBUTING COUPLING`` average; every other
+    link card is a general constraint.  Node ids not in the deck are handled
+    as :func:`deck_links` does.
+    """
+    from ..rigid import Link
+
+    out = []
+    for card, ids in deck.links:
+        nodes = deck.index_of(ids, f"a {card} card")
+        kind = ("rigid" if card in _RIGID_CARDS else
+                "average" if card in _AVERAGE_CARDS else "general")
+        out.append(Link(kind, card, np.asarray(nodes, dtype=np.int64)))
+    return out
 
 
 def deck_support_set(deck: Deck, layout: DofLayout):  # -> bandwise.supports.SupportSet
