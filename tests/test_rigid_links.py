@@ -131,3 +131,18 @@ def test_kinematic_coupling_of_a_keyword_deck(runner, cli_app, tmp_path) -> None
     held = tmp_path / "kh.inp"
     held.write_text(KINEMATIC_INP + "*BOUNDARY\n99, 1, 6\n")
     assert _json_modes(runner, cli_app, held) == 0
+
+
+def test_rbe2_components_are_read_and_a_missing_node_is_an_error(tmp_path) -> None:
+    import pytest
+
+    from bandwise.decks import deck_rigid_links, parse_bulk_deck
+    from bandwise.errors import MeshReadError
+
+    text = HANGING_BULK.replace("RBE2         101      99  123456", "RBE2         101      99     123")
+    links = deck_rigid_links(parse_bulk_deck(text + "ENDDATA\n", "t.bdf"))
+    assert [ln.components for ln in links] == [SOLID | 0o70, SOLID]   # 123456, 123
+    assert [ln.kind for ln in links] == ["rigid", "rigid"]
+    bad = HANGING_BULK.replace("      13\n", "      77\n")
+    with pytest.raises(MeshReadError):
+        deck_rigid_links(parse_bulk_deck(bad + "ENDDATA\n", "t.bdf"))

@@ -121,18 +121,20 @@ def deck_rigid_links(deck: Deck):  # -> list[bandwise.rigid.Link]
     """The deck's links for the zero-energy analysis, reference node first.
 
     RBE2, RBAR, ``*RIGID BODY`` and ``*KINEMATIC COUPLING`` are rigid links
-    (tying all DOFs); RBE3 and ``*DISTRIBUTING COUPLING`` average; every other
+    (tying the DOFs RBE2's CM field names, else all); RBE3 and ``*DISTRIBUTING COUPLING`` average; every other
     link card is a general constraint.  Node ids not in the deck are handled
     as :func:`deck_links` does.
     """
     from ..rigid import Link
 
     out = []
-    for card, ids in deck.links:
+    for k, (card, ids) in enumerate(deck.links):
         nodes = deck.index_of(ids, f"a {card} card")
         kind = ("rigid" if card in _RIGID_CARDS else
                 "average" if card in _AVERAGE_CARDS else "general")
-        out.append(Link(kind, card, np.asarray(nodes, dtype=np.int64)))
+        digits = deck.link_dofs.get(k, "123456")
+        mask = dof_mask([DOF_NAMES[int(d) - 1] for d in set(digits) if "1" <= d <= "6"])
+        out.append(Link(kind, card, np.asarray(nodes, dtype=np.int64), mask))
     return out
 
 

@@ -313,6 +313,7 @@ class _State:
     supports: list[tuple[int, tuple[str, ...]]] = field(default_factory=list)
     set_supports: list[tuple[str, tuple[str, ...]]] = field(default_factory=list)
     links: list[tuple[str, np.ndarray]] = field(default_factory=list)
+    link_dofs: dict[int, str] = field(default_factory=dict)
     loads: list[tuple[str, int]] = field(default_factory=list)
     refs: NodeRefs = field(default_factory=NodeRefs)
     unhandled: dict[str, int] = field(default_factory=dict)
@@ -391,6 +392,9 @@ def _rbe2(st: _State, card: Card) -> None:
             continue
         group.append(st.node(card, d))
     st.links.append(("RBE2", np.asarray([g for g in group if g is not None], dtype=np.int64)))
+    cm = card.text(2) if len(card.fields) > 2 else ""
+    if cm and cm.isdigit():
+        st.link_dofs[len(st.links) - 1] = cm
 
 
 def _rbe3(st: _State, card: Card) -> None:

@@ -190,6 +190,9 @@ class Deck:
         Boundary-condition cards: (node id, DOF names) pairs, in file order.
     links
         Rigid links and multi-point constraints: (card, node ids) groups.
+    link_dofs
+        DOF components a link ties, where its card gives them (RBE2's CM
+        digits, 1-6), by index into ``links``.
     loads
         Load cards naming nodes: (card, node id) pairs.
     refs
@@ -221,6 +224,7 @@ class Deck:
     unhandled: dict[str, int] = field(default_factory=dict)
     includes: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    link_dofs: dict[int, str] = field(default_factory=dict)   # link index -> DOF digits
 
     @property
     def n_nodes(self) -> int:
@@ -302,7 +306,7 @@ def assembled_deck(source: str, kind: str, lines: list, state: object,
                 node_sets={k: np.asarray(v, dtype=np.int64) for k, v in st.node_sets.items()},
                 supports=st.supports, links=st.links, loads=st.loads, refs=st.refs,
                 list_rewrites=list_rewrites, unhandled=st.unhandled, includes=st.includes,
-                notes=st.notes)
+                notes=st.notes, link_dofs=getattr(st, "link_dofs", {}))
 
 
 def new_ids(node_ids: NDArray[np.integer], perm: NDArray[np.integer]) -> dict[int, int]:
