@@ -146,3 +146,20 @@ def test_rbe2_components_are_read_and_a_missing_node_is_an_error(tmp_path) -> No
     bad = HANGING_BULK.replace("      13\n", "      77\n")
     with pytest.raises(MeshReadError):
         deck_rigid_links(parse_bulk_deck(bad + "ENDDATA\n", "t.bdf"))
+
+
+def test_stiffness_check_of_a_linked_deck_says_it_was_not_checked(runner, cli_app,
+                                                                   tmp_path) -> None:
+    # The unit-material stiffness has no term for a rigid link, so comparing its
+    # null space with the linked kinematic count would report a false disagreement:
+    # the check must say it did not run, and why.
+    import json
+
+    path = tmp_path / "tied.bdf"
+    path.write_text(HANGING_BULK + "ENDDATA\n")
+    result = runner.invoke(cli_app, ["check", str(path), "--json", "--stiffness-check"])
+    doc = json.loads(result.stdout)["meshes"][0]
+    text = json.dumps(doc)
+    assert doc["zero_energy_modes"]["total"] == 6
+    assert "rigid link(s) have no stiffness representation" in text
+    assert "stiffness.disagrees" not in text

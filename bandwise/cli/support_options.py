@@ -178,7 +178,10 @@ def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
     stiffness = None
     if request.stiffness_check:
         with step(progress, "checking the stiffness null space"):
-            stiffness = verify_stiffness(model, layout, supports, analysis)
+            stiffness = verify_stiffness(model, layout, supports, analysis) if not links else \
+                StiffnessCheck(False, None, analysis.total, layout.total - supports.n_fixed_dofs,
+                               f"the input's {len(links)} rigid link(s) have no stiffness "
+                               "representation to check against: not checked")
     if request.dof_map is not None:
         labels = model.node_labels()[0]
         write_dof_map(request.dof_map, equations, labels,
