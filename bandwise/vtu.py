@@ -113,7 +113,8 @@ class _Reader:
             out = np.empty(total // dtype.itemsize, dtype)
             view = memoryview(out).cast("B")
             pos, skip = 0, 0 if apart else hs
-            for piece in self._stream(start + hchars if apart else start, end):
+            for chunk in self._stream(start + hchars if apart else start, end):
+                piece = memoryview(chunk)
                 if skip:
                     n = min(skip, len(piece))
                     piece, skip = piece[n:], skip - n
@@ -158,11 +159,12 @@ class _Reader:
         blocks = iter(sizes.tolist())
         need = next(blocks, None)
         inflater = zlib.decompressobj()
-        for piece in self._stream(start + hchars, end):
-            while piece and need is not None:
-                take = min(need, len(piece))
-                got = inflater.decompress(piece[:take])
-                piece, need = piece[take:], need - take
+        for chunk in self._stream(start + hchars, end):
+            piece, at = memoryview(chunk), 0  # a view: no copy of the rest of the chunk
+            while at < len(piece) and need is not None:
+                take = min(need, len(piece) - at)
+                got = inflater.decompress(piece[at:at + take])
+                at, need = at + take, need - take
                 if pos + len(got) > total:
                     raise NotHandled("block larger than announced")
                 view[pos:pos + len(got)] = got
