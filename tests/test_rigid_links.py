@@ -163,3 +163,20 @@ def test_stiffness_check_of_a_linked_deck_says_it_was_not_checked(runner, cli_ap
     assert doc["zero_energy_modes"]["total"] == 6
     assert "rigid link(s) have no stiffness representation" in text
     assert "stiffness.disagrees" not in text
+
+
+def test_report_of_a_deck_uses_its_links_and_boundary_cards(runner, cli_app, tmp_path) -> None:
+    # `report` reads a deck as `check` does: the RBE2 ties the two tetrahedra
+    # into one rigid body (6 modes, common practice for a free 3D body) and the
+    # SPC1 on the reference grid holds it (0).
+    import json
+
+    for text, expected in ((HANGING_BULK + "ENDDATA\n", 6),
+                           (HANGING_BULK + "SPC1           1  123456      99\nENDDATA\n", 0)):
+        deck = tmp_path / f"deck{expected}.bdf"
+        deck.write_text(text)
+        out = tmp_path / f"report{expected}"
+        result = runner.invoke(cli_app, ["report", str(deck), "--out", str(out)])
+        assert result.exit_code == 0, result.output
+        doc = json.loads((out / "report.json").read_text())
+        assert doc["modes"]["total"] == expected

@@ -12,20 +12,22 @@ from typing import Annotated, Any
 
 import typer
 
-from ..checks import run_checks
+from ..checks import CheckOptions, run_checks
 from ..checks.findings import Finding
 from ..checks.verdict import FAIL_ON, check_fail_on
 from ..compare import OBJECTIVES, Comparison, compare_orderings
+from ..decks import deck_links, deck_rigid_links, deck_support_set
+from ..decks.files import deck_graph, read_mesh_or_deck
 from ..dofs import DofLayout, dof_layout
 from ..equations import equation_numbering
 from ..errors import InputError
 from ..graph import NodeGraph, graph_from_matrix, node_graph
 from ..matrix_io import is_matrix_file, read_matrix_data, summarise_matrix
-from ..meshio_io import read_model
 from ..model import Model
 from ..progress import Progress, StderrProgress, step
 from ..report import ReportFiles, ReportInputs, check_report_folder, write_report
 from ..report.document import PROBLEMS, verdict
+from ..rigid import link_layout
 from ..summary import MeshSummary, summarise
 from . import CAUTION, EXIT_FINDINGS, DofsOpt, FormatOpt, PhysicsOpt, app, guarded
 from .support_options import (
@@ -176,13 +178,18 @@ def report(
         _finish(write_report(out, inputs, progress), inputs)
         return
     request = support_request(support, supports_file, False, None, 1)
-    model = read_model(mesh, file_format)
-    layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
+    model, deck = read_mesh_or_deck(mesh, file_format)  # a deck's BCs and links as check reads them
+    options = CheckOptions() if deck is None else CheckOptions(links=tuple(deck_links(deck)))
+    rigid_links = [] if deck is None else deck_rigid_links(deck)
+    layout = link_layout(model, dof_layout(model, dofs_per_node=dofs_per_node, physics=physics),
+                         rigid_links)
     with step(progress, "building node graph"):
-        graph = node_graph(model)
+        graph = node_graph(model) if deck is None else deck_graph(deck, model)
     summary = summarise(model, layout, graph, progress=progress)
-    held = analyse_supports(model, layout, graph, request, progress)
-    findings = merged_findings(run_checks(model, graph, progress=progress), held)
+    held = analyse_supports(model, layout, graph, request, progress,
+                            None if deck is None else deck_support_set(deck, layout), None,
+                            rigid_links)
+    findings = merged_findings(run_checks(model, graph, options, progress=progress), held)
     comparison = (None if method == "none" else
                   compare_orderings(graph, method, objective, layout, progress=progress))
     inputs = mesh_report_inputs(model, layout, graph, summary, findings, held, comparison,
