@@ -226,7 +226,8 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
             validate_model(fast)
             from .memory import check_fits, estimate_bytes
 
-            check_fits(estimate_bytes(fast.n_nodes, fast.cells_by_type()), what=str(path))
+            check_fits(estimate_bytes(fast.n_nodes, fast.cells_by_type(), streamed=True),
+                       what=str(path))
             from .formats import sets_from_fields
 
             return sets_from_fields(fast)
