@@ -18,6 +18,20 @@ ROOT = Path(__file__).resolve().parent.parent
 SHARED = ROOT.parent / "shared"
 MESHES = ROOT / "meshes"
 
+#: Two unit tetrahedra 5 apart, as bulk data (the decks of the link tests add to it).
+TWO_TETS_BULK = """BEGIN BULK
+GRID           1              0.      0.      0.
+GRID           2              1.      0.      0.
+GRID           3              0.      1.      0.
+GRID           4              0.      0.      1.
+GRID          11              5.      0.      0.
+GRID          12              6.      0.      0.
+GRID          13              5.      1.      0.
+GRID          14              5.      0.      1.
+CTETRA         1       1       1       2       3       4
+CTETRA         2       1      11      12      13      14
+"""
+
 settings.register_profile(
     "bandwise", derandomize=True, deadline=None, max_examples=40,
     suppress_health_check=[HealthCheck.too_slow],

@@ -13,20 +13,9 @@ from __future__ import annotations
 
 import json
 
-from conftest import MESHES
+from conftest import MESHES, TWO_TETS_BULK
 
-TIED_TETS = """BEGIN BULK
-GRID           1              0.      0.      0.
-GRID           2              1.      0.      0.
-GRID           3              0.      1.      0.
-GRID           4              0.      0.      1.
-GRID          11              5.      0.      0.
-GRID          12              6.      0.      0.
-GRID          13              5.      1.      0.
-GRID          14              5.      0.      1.
-CTETRA         1       1       1       2       3       4
-CTETRA         2       1      11      12      13      14
-RBE2         100       2  123456      11
+TIED_TETS = TWO_TETS_BULK + """RBE2         100       2  123456      11
 SPC1           1     123       1       3       4
 ENDDATA
 """

@@ -10,6 +10,7 @@ bodies sharing one point form a spherical joint: 6 + 3 = 9 degrees of freedom
 from __future__ import annotations
 
 import numpy as np
+from conftest import TWO_TETS_BULK
 
 from bandwise.dofs import SOLID, dof_layout
 from bandwise.generate import tet_grid
@@ -74,18 +75,7 @@ def test_rbe3_is_left_out_with_a_note() -> None:
     assert any("RBE3" in n and "not modelled" in n for n in a.notes)
 
 
-HANGING_BULK = """BEGIN BULK
-GRID           1              0.      0.      0.
-GRID           2              1.      0.      0.
-GRID           3              0.      1.      0.
-GRID           4              0.      0.      1.
-GRID          11              5.      0.      0.
-GRID          12              6.      0.      0.
-GRID          13              5.      1.      0.
-GRID          14              5.      0.      1.
-GRID          99              3.      0.      0.
-CTETRA         1       1       1       2       3       4
-CTETRA         2       1      11      12      13      14
+HANGING_BULK = TWO_TETS_BULK + """GRID          99              3.      0.      0.
 RBE2         100      99  123456       2       3       4      11      12
 RBE2         101      99  123456      13
 """
