@@ -1294,7 +1294,7 @@ def _pick_holds(w: NDArray[np.float64], node_of: NDArray[np.int64], n_modes: int
             sv = la.svd(rest[rows], compute_uv=False)
             score = (int(np.count_nonzero(sv > 1e-6 * max(sv.max(initial=0), 1.0))),
                      float(sv.sum()))
-            if score > best_score:
+            if score[0] and score > best_score:     # a node that removes no mode is no pick
                 best, best_score = rows, score
         if best is None:
             break                                   # the candidates cannot hold the rest

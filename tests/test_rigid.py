@@ -308,3 +308,23 @@ def test_large_truss_takes_the_sparse_path_and_matches_calladine() -> None:
     rigid = sum(p.n_rigid for p in loose.parts)
     assert rigid == 3
     assert loose.total - rigid == _calladine_mechanisms(grid.points, sides, 2)
+
+
+def test_hold_choice_ends_when_no_candidate_removes_a_mode():
+    # Found by fuzzing (a damaged VTK file): candidate DOFs whose motions in the
+    # free modes are all below the rank threshold (but not zero) made the
+    # node-by-node choice loop for ever. Each pick must remove at least one mode.
+    import threading
+
+    from bandwise.rigid import _pick_holds
+
+    w = 1e-9 * np.random.default_rng(3).random((12, 3))
+    node_of = np.repeat(np.arange(4), 3)
+    out: list = []
+    worker = threading.Thread(target=lambda: out.append(_pick_holds(w, node_of, 3)), daemon=True)
+    worker.start()
+    worker.join(10)
+    assert out == [[]]
+    # and a well-posed case still holds every mode: one node per translation
+    w = np.kron(np.eye(3), np.ones((1, 1)))
+    assert sorted(_pick_holds(w, np.arange(3), 3)) == [0, 1, 2]
