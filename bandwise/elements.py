@@ -32,6 +32,18 @@ CORNER_COUNT: dict[str, int] = {
 }
 
 
+def node_count(cell_type: str) -> int | None:
+    """Nodes per cell of a fixed-size cell type (``"tetra10"`` -> 10), None if not fixed or unknown.
+
+    The count is the number in the meshio type name, or the corner count of a
+    linear type (meshio's cell type names, common practice).
+    """
+    if cell_type not in CORNER_COUNT:
+        return None
+    digits = cell_type.lstrip("abcdefghijklmnopqrstuvwxyz")
+    return int(digits) if digits else CORNER_COUNT[cell_type]
+
+
 def cell_dimension(cell_type: str) -> int | None:
     """Topological dimension of a meshio cell type, or None if not analysed."""
     return CELL_DIMENSION.get(cell_type)

@@ -32,7 +32,7 @@ from typing import Any
 import numpy as np
 
 from .atomic import atomic_folder
-from .elements import is_analysed
+from .elements import is_analysed, node_count
 from .errors import InputError, MeshReadError, MeshWriteError
 from .model import CellBlock, Model
 
@@ -395,6 +395,11 @@ def validate_model(model: Model) -> None:
         if len(block) == 0:
             continue
         data = block.data
+        expected = node_count(block.type)
+        if data.dtype != object and expected is not None and data.shape[1] != expected:
+            raise MeshReadError(f"{src}: cell block {k + 1} ({block.type}) has {data.shape[1]} "
+                                f"nodes per cell where a {block.type} has {expected}: the file "
+                                "is cut short or damaged")
         if data.dtype == object:
             flat = np.concatenate(list(data)) if len(data) else np.zeros(0, np.int64)
         else:

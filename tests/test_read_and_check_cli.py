@@ -185,3 +185,18 @@ def test_only_vertex_cells_is_refused_naming_the_file(runner, cli_app, tmp_path)
     code, out, err = run(runner, cli_app, "check", path)
     assert code == 2 and out == ""
     assert err.count("\n") == 1 and "points_only.vtu" in err and "vertex" in err
+
+
+@pytest.mark.parametrize("cell_type, width", [("quad", 0), ("tetra", 3), ("tetra10", 4)])
+def test_cells_of_the_wrong_width_are_a_damaged_file(cell_type, width):
+    # Found by fuzzing: a gmsh file cut inside its element section gave meshio a
+    # quad block of zero nodes per cell, which then failed deep in the checks.
+    # A quad has 4 nodes, a tetra 4, a tetra10 10 (meshio cell type names, the
+    # VTK cell types; common practice).
+    from bandwise.errors import MeshReadError
+    from bandwise.meshio_io import validate_model
+
+    model = Model(points=np.zeros((5, 3)),
+                  cells=[CellBlock(cell_type, np.zeros((3, width), dtype=np.int64))])
+    with pytest.raises(MeshReadError, match=rf"\({cell_type}\) has {width} nodes per cell"):
+        validate_model(model)
