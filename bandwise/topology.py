@@ -29,13 +29,14 @@ C. Geuzaine, J.-F. Remacle, "Gmsh reference manual", node ordering (prism).
 
 from __future__ import annotations
 
-from concurrent.futures import Future, ThreadPoolExecutor
+from concurrent.futures import Future
 from dataclasses import dataclass, field
 
 import numba
 import numpy as np
 from numpy.typing import NDArray
 
+from .background import in_background
 from .elements import CORNER_COUNT, cell_dimension
 from .errors import InputError
 from .model import Model
@@ -344,11 +345,7 @@ def facet_table_in_background(model: Model, coupling: list[NDArray[np.bool_]] | 
     another core.  ``future.result()`` gives the table or raises what
     building it raised.
     """
-    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="bandwise-facets")
-    try:
-        return pool.submit(facet_table, model, coupling)
-    finally:
-        pool.shutdown(wait=False)
+    return in_background(facet_table, model, coupling)
 
 
 @numba.njit(cache=True, nogil=True, inline="always")

@@ -16,11 +16,10 @@ plus hanging nodes (:mod:`.hanging`) and the cell blocks not analysed.
 from __future__ import annotations
 
 from collections.abc import Callable
-from concurrent.futures import Future, ThreadPoolExecutor
-from typing import Any
 
 import numpy as np
 
+from ..background import in_background
 from ..graph import NodeGraph, node_graph
 from ..meshio_io import skipped_blocks
 from ..model import Model
@@ -110,7 +109,7 @@ def run_checks(model: Model, graph: NodeGraph | None = None,
     pending = None
     if model.n_cells >= BACKGROUND_TABLE_CELLS:
         ctx.coupling  # noqa: B018  computed once, before the threads share it
-        pending = _in_background(_run_table_checks, ctx, later)
+        pending = in_background(_run_table_checks, ctx, later)
     for label, check in CHECKS:
         if pending is None or check not in NEED_TABLE:
             with step(progress, label):
@@ -128,14 +127,6 @@ def _run_table_checks(ctx: CheckContext, checks: list[tuple[str, Callable[[Check
                       list[Finding]]]]) -> dict[str, list[Finding]]:
     """The checks that need the facet table (built first, if not given), in order."""
     return {label: check(ctx) for label, check in checks}
-
-
-def _in_background(func: Callable[..., Any], *args: Any) -> Future[Any]:
-    pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="bandwise-checks")
-    try:
-        return pool.submit(func, *args)
-    finally:
-        pool.shutdown(wait=False)
 
 
 def _skipped(model: Model) -> list[Finding]:
