@@ -18,12 +18,10 @@ from ..checks.verdict import (
     summary_line,
     verdict,
 )
-from ..decks import deck_links, deck_rigid_links, deck_support_set
 from ..decks.files import deck_graph, read_mesh_or_deck
 from ..dofs import dof_layout
 from ..graph import node_graph
 from ..progress import StderrProgress, step
-from ..rigid import link_layout
 from ..summary import MeshSummary, summarise
 from ..tables import human_bytes, human_count, render_table
 from ..topology import face_connected_blocks, facet_table_in_background
@@ -45,6 +43,7 @@ from .support_options import (
     SupportFileOpt,
     SupportOpt,
     analyse_supports,
+    deck_inputs,
     merged_findings,
     support_request,
 )
@@ -159,11 +158,10 @@ def check(
     for path in files:
         with step(progress, f"reading {path.name}"):
             model, deck = read_mesh_or_deck(path, file_format)
-        options = base_options if deck is None else dataclasses.replace(
-            base_options, links=tuple(deck_links(deck)))
-        layout = dof_layout(model, dofs_per_node=dofs_per_node, physics=physics)
-        rigid_links = [] if deck is None else deck_rigid_links(deck)   # links in the modes
-        layout = link_layout(model, layout, rigid_links)
+        extra = deck_inputs(model, deck, dof_layout(model, dofs_per_node=dofs_per_node,
+                                                    physics=physics))
+        options = dataclasses.replace(base_options, links=extra.check_links)
+        layout = extra.layout
         pending = facet_table_in_background(model)  # meanwhile: the graph and the summary
         with step(progress, "building node graph"):
             graph = node_graph(model) if deck is None else deck_graph(deck, model)
@@ -173,7 +171,7 @@ def check(
             _, labels = face_connected_blocks(model, table)
         reports.append(analyse_supports(
             model, layout, graph, request, progress,
-            None if deck is None else deck_support_set(deck, layout), labels, rigid_links))
+            extra.supports, labels, extra.rigid_links))
         all_findings.append(merged_findings(
             run_checks(model, graph, options, progress=progress, table=table), reports[-1]))
         write_report_option(report_dir, mesh_report_inputs(

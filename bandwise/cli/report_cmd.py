@@ -16,7 +16,6 @@ from ..checks import CheckOptions, run_checks
 from ..checks.findings import Finding
 from ..checks.verdict import FAIL_ON, check_fail_on
 from ..compare import OBJECTIVES, Comparison, compare_orderings
-from ..decks import deck_links, deck_rigid_links, deck_support_set
 from ..decks.files import deck_graph, read_mesh_or_deck
 from ..dofs import DofLayout, dof_layout
 from ..equations import equation_numbering
@@ -27,7 +26,6 @@ from ..model import Model
 from ..progress import Progress, StderrProgress, step
 from ..report import ReportFiles, ReportInputs, check_report_folder, write_report
 from ..report.document import PROBLEMS, verdict
-from ..rigid import link_layout
 from ..summary import MeshSummary, summarise
 from . import CAUTION, EXIT_FINDINGS, DofsOpt, FormatOpt, PhysicsOpt, app, guarded
 from .support_options import (
@@ -35,6 +33,7 @@ from .support_options import (
     SupportOpt,
     SupportReport,
     analyse_supports,
+    deck_inputs,
     merged_findings,
     support_request,
 )
@@ -179,17 +178,16 @@ def report(
         return
     request = support_request(support, supports_file, False, None, 1)
     model, deck = read_mesh_or_deck(mesh, file_format)  # a deck's BCs and links as check reads them
-    options = CheckOptions() if deck is None else CheckOptions(links=tuple(deck_links(deck)))
-    rigid_links = [] if deck is None else deck_rigid_links(deck)
-    layout = link_layout(model, dof_layout(model, dofs_per_node=dofs_per_node, physics=physics),
-                         rigid_links)
+    extra = deck_inputs(model, deck, dof_layout(model, dofs_per_node=dofs_per_node,
+                                                physics=physics))
+    layout = extra.layout
     with step(progress, "building node graph"):
         graph = node_graph(model) if deck is None else deck_graph(deck, model)
     summary = summarise(model, layout, graph, progress=progress)
-    held = analyse_supports(model, layout, graph, request, progress,
-                            None if deck is None else deck_support_set(deck, layout), None,
-                            rigid_links)
-    findings = merged_findings(run_checks(model, graph, options, progress=progress), held)
+    held = analyse_supports(model, layout, graph, request, progress, extra.supports, None,
+                            extra.rigid_links)
+    findings = merged_findings(run_checks(model, graph, CheckOptions(links=extra.check_links),
+                                          progress=progress), held)
     comparison = (None if method == "none" else
                   compare_orderings(graph, method, objective, layout, progress=progress))
     inputs = mesh_report_inputs(model, layout, graph, summary, findings, held, comparison,

@@ -25,13 +25,14 @@ from typing import Annotated, Any
 import typer
 
 from ..checks.findings import Finding, severity_rank
+from ..decks import Deck, deck_links, deck_rigid_links, deck_support_set
 from ..dofs import DofLayout
 from ..equations import EquationNumbering, equation_numbering, write_dof_map
 from ..errors import InputError
 from ..graph import NodeGraph
 from ..model import Model
 from ..progress import Progress, step
-from ..rigid import ZeroEnergyAnalysis, zero_energy_modes
+from ..rigid import Link, ZeroEnergyAnalysis, link_layout, zero_energy_modes
 from ..stiffness import MAX_VERIFY_DOFS, StiffnessCheck, verify_stiffness
 from ..supports import Support, SupportSet, apply_supports, parse_support, read_support_file
 from ..tables import human_bytes, render_table
@@ -156,6 +157,25 @@ class SupportReport:
         if self.stiffness is not None:
             lines.append(self.stiffness.message)
         return "\n".join(lines)
+
+
+@dataclass(frozen=True)
+class DeckInputs:
+    """What a solver deck adds to its mesh, for the checks and the zero-energy analysis."""
+
+    check_links: tuple[Any, ...]     # node groups tied by links: extra connectivity for the checks
+    rigid_links: list[Link]          # links as constraints of the zero-energy analysis
+    layout: DofLayout                # with DOFs of their own at nodes only links use
+    supports: SupportSet | None      # the deck's boundary-condition cards
+
+
+def deck_inputs(model: Model, deck: Deck | None, layout: DofLayout) -> DeckInputs:
+    """The links, DOF layout and supports a deck gives (nothing added for a plain mesh)."""
+    if deck is None:
+        return DeckInputs((), [], layout, None)
+    rigid = deck_rigid_links(deck)
+    layout = link_layout(model, layout, rigid)
+    return DeckInputs(tuple(deck_links(deck)), rigid, layout, deck_support_set(deck, layout))
 
 
 def analyse_supports(model: Model, layout: DofLayout, graph: NodeGraph,
