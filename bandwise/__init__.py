@@ -6,7 +6,7 @@ wavefront and solver storage under any node numbering, and renumber it.
 >>> import bandwise
 >>> model = bandwise.read_model("meshes/bracket.msh")   # doctest: +SKIP
 >>> graph = bandwise.node_graph(model)                   # doctest: +SKIP
->>> bandwise.metrics(graph).bandwidth                    # doctest: +SKIP
+>>> bandwise.core.metrics(graph).bandwidth                    # doctest: +SKIP
 """
 
 from __future__ import annotations
@@ -29,21 +29,31 @@ def _numba_cache_dir() -> str:
 
 os.environ.setdefault("NUMBA_CACHE_DIR", _numba_cache_dir())  # before numba is imported
 
-from .compare import Comparison, OrderingResult, compare_orderings
-from .dofs import DofLayout, dof_layout
-from .equations import EquationNumbering, equation_numbering, write_dof_map
-from .errors import BandwiseError, InputError, MeshReadError, MeshWriteError
-from .frontal import FrontWidth, front_width, frontal_reordering, reordered_elements
-from .graph import NodeGraph, graph_from_matrix, node_graph
-from .matrix_io import is_matrix_file, read_matrix, write_matrix_market
-from .meshio_io import read_model, write_model
-from .metrics import Metrics, metrics
-from .model import CellBlock, Model, inverse_permutation
-from .node_map import read_node_map, write_node_map
-from .rigid import ZeroEnergyAnalysis, zero_energy_modes
-from .stiffness import StiffnessCheck, assemble_stiffness, verify_stiffness
-from .summary import MeshSummary, summarise
-from .supports import SupportSet, apply_supports, parse_support, read_support_file
+from bandwise.algorithms.orderings.compare import Comparison, OrderingResult, compare_orderings
+from bandwise.algorithms.orderings.frontal import (
+    FrontWidth,
+    front_width,
+    frontal_reordering,
+    reordered_elements,
+)
+from bandwise.algorithms.rigid import ZeroEnergyAnalysis, zero_energy_modes
+from bandwise.algorithms.stiffness import StiffnessCheck, assemble_stiffness, verify_stiffness
+from bandwise.algorithms.supports import (
+    SupportSet,
+    apply_supports,
+    parse_support,
+    read_support_file,
+)
+from bandwise.core.dofs import DofLayout, dof_layout
+from bandwise.core.equations import EquationNumbering, equation_numbering
+from bandwise.core.errors import BandwiseError, InputError, MeshReadError, MeshWriteError
+from bandwise.core.graph import NodeGraph, graph_from_matrix, node_graph
+from bandwise.core.metrics import Metrics, metrics
+from bandwise.core.model import CellBlock, Model, inverse_permutation
+from bandwise.core.summary import MeshSummary, summarise
+from bandwise.formats.matrix_io import is_matrix_file, read_matrix, write_matrix_market
+from bandwise.formats.meshio_io import read_model, write_model
+from bandwise.formats.node_map import read_node_map, write_dof_map, write_node_map
 
 try:
     __version__ = version("bandwise")

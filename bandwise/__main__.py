@@ -1,5 +1,5 @@
 """``python -m bandwise`` runs the command line."""
 
-from .cli import main
+from bandwise.faces.cli import main
 
 main()

@@ -58,10 +58,10 @@ BANDWISE = MEMORY + """
 import json, sys, time
 import numpy as np
 import bandwise
-from bandwise.generate import tet_grid
-from bandwise.summary import count_parts
+from bandwise.core.generate import tet_grid
+from bandwise.core.summary import count_parts
 t = time.perf_counter()
-small = tet_grid(3, 3, 3); g = bandwise.node_graph(small); bandwise.metrics(g); count_parts(g)
+small = tet_grid(3, 3, 3); g = bandwise.node_graph(small); bandwise.core.metrics(g); count_parts(g)
 import meshio  # imported before timing, as in the meshio-alone run
 warm = time.perf_counter() - t
 base_rss = reset_peak()
@@ -73,7 +73,7 @@ after_read = reset_peak()
 t = time.perf_counter(); graph = bandwise.node_graph(model); steps["node_graph"] = time.perf_counter() - t
 t = time.perf_counter()
 layout = bandwise.dof_layout(model)
-node = bandwise.metrics(graph); dof = bandwise.metrics(graph, dofs=layout); parts = count_parts(graph)
+node = bandwise.core.metrics(graph); dof = bandwise.core.metrics(graph, dofs=layout); parts = count_parts(graph)
 steps["metrics"] = time.perf_counter() - t
 total = time.perf_counter() - t0
 print(json.dumps({"seconds": total, "steps": steps, "warmup": warm, "base_rss": base_rss,
@@ -91,8 +91,8 @@ def run(script: str, path: Path) -> dict:
 
 
 def make_mesh(nodes: int, folder: Path) -> tuple[Path, int]:
-    from bandwise.generate import nodes_for_tet_box, scrambled, tet_grid
-    from bandwise.meshio_io import write_model
+    from bandwise.core.generate import nodes_for_tet_box, scrambled, tet_grid
+    from bandwise.formats.meshio_io import write_model
 
     k = nodes_for_tet_box(nodes)
     model = scrambled(tet_grid(k, k, k), seed=1)

@@ -4,7 +4,7 @@ Makes a scrambled tetrahedral box of about ``--nodes`` nodes (default one
 million), writes it as VTU in a temporary folder, then times
 
 1. ``meshio.read`` of that file;
-2. :func:`bandwise.checks.run_checks` on the mesh read (every check,
+2. :func:`bandwise.algorithms.checks.run_checks` on the mesh read (every check,
    default options), given the node graph, which ``bandwise check`` builds
    once for the summary and the checks; its time is printed apart.
 
@@ -49,10 +49,10 @@ def main() -> None:
 
     import meshio
 
-    from bandwise.checks import run_checks
-    from bandwise.generate import nodes_for_tet_box, scrambled, tet_grid
-    from bandwise.graph import node_graph
-    from bandwise.meshio_io import model_from_meshio, to_meshio
+    from bandwise.algorithms.checks import run_checks
+    from bandwise.core.generate import nodes_for_tet_box, scrambled, tet_grid
+    from bandwise.core.graph import node_graph
+    from bandwise.formats.meshio_io import model_from_meshio, to_meshio
 
     run_checks(tet_grid(3, 3, 3))  # warm-up: compile / load the numba kernels
     side = nodes_for_tet_box(args.nodes)

@@ -2,7 +2,7 @@
 
 Part 1: for every matrix of the shared Harwell-Boeing set listed in
 ``published.csv``, nnz(L) (diagonal included, from
-:func:`bandwise.symbolic.cholesky_nnz`) under the file's own numbering, RCM
+:func:`bandwise.algorithms.orderings.symbolic.cholesky_nnz`) under the file's own numbering, RCM
 (if registered), spectral and nested dissection, beside the published figure
 after approximate minimum degree (column ``cholesky_nnz_amd_incl_diag``),
 with ratios to it and their geometric means.
@@ -27,10 +27,10 @@ from pathlib import Path
 import numpy as np
 import scipy.io
 
-from bandwise import generate
-from bandwise.graph import graph_from_matrix, node_graph
-from bandwise.orderings import ORDERINGS, load_all
-from bandwise.symbolic import cholesky_nnz
+from bandwise.algorithms.orderings import ORDERINGS, load_all
+from bandwise.algorithms.orderings.symbolic import cholesky_nnz
+from bandwise.core import generate
+from bandwise.core.graph import graph_from_matrix, node_graph
 
 MATRICES = Path(__file__).resolve().parent.parent.parent / "shared" / "matrices"
 METHODS = ("identity", "rcm", "spectral", "nd")
@@ -43,7 +43,7 @@ def available_orderings() -> dict[str, object]:
     except (ImportError, SyntaxError, AttributeError, NameError) as exc:
         # an ordering module being edited must not stop the benchmark
         print(f"(some ordering modules did not import: {exc})")
-        from bandwise.orderings import nested_dissection, spectral  # noqa: F401
+        from bandwise.algorithms.orderings import nested_dissection, spectral  # noqa: F401
     found = {"identity": lambda g: np.arange(g.n, dtype=np.int64)}
     for name in METHODS[1:]:
         if name in ORDERINGS:

@@ -42,13 +42,13 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from bandwise.generate import nodes_for_tet_box, scrambled, tet_grid
-from bandwise.graph import NodeGraph, graph_from_matrix, node_graph
-from bandwise.metrics import metrics
-from bandwise.orderings import identity, load_all
-from bandwise.orderings.cuthill_mckee import reverse_cuthill_mckee
-from bandwise.orderings.gps import gps
-from bandwise.orderings.sloan import sloan
+from bandwise.algorithms.orderings import identity, load_all
+from bandwise.algorithms.orderings.cuthill_mckee import reverse_cuthill_mckee
+from bandwise.algorithms.orderings.gps import gps
+from bandwise.algorithms.orderings.sloan import sloan
+from bandwise.core.generate import nodes_for_tet_box, scrambled, tet_grid
+from bandwise.core.graph import NodeGraph, graph_from_matrix, node_graph
+from bandwise.core.metrics import metrics
 
 MATRICES = ROOT.parent / "shared" / "matrices"
 

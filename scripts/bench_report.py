@@ -5,7 +5,7 @@ million), then times
 
 1. the analysis: node graph, sizing summary, mesh checks, and the reverse
    Cuthill-McKee ordering with its figures (``compare_orderings(..., "rcm")``);
-2. the report of those results: :func:`bandwise.report.write_report`
+2. the report of those results: :func:`bandwise.faces.report.write_report`
    (mesh drawing, binned sparsity patterns, skyline and wavefront curves,
    comparison chart, HTML and JSON).
 
@@ -43,12 +43,12 @@ class _Steps:
 
 
 def _analyse(model):
-    from bandwise.checks import run_checks
-    from bandwise.compare import compare_orderings
-    from bandwise.dofs import dof_layout
-    from bandwise.graph import node_graph
-    from bandwise.report import ReportInputs
-    from bandwise.summary import summarise
+    from bandwise.algorithms.checks import run_checks
+    from bandwise.algorithms.orderings.compare import compare_orderings
+    from bandwise.core.dofs import dof_layout
+    from bandwise.core.graph import node_graph
+    from bandwise.core.summary import summarise
+    from bandwise.faces.report import ReportInputs
 
     graph = node_graph(model)
     layout = dof_layout(model)
@@ -60,8 +60,8 @@ def _analyse(model):
 
 
 def _run(nodes: int, folder: Path) -> tuple[float, float, _Steps, Path]:
-    from bandwise.generate import nodes_for_tet_box, scrambled, tet_grid
-    from bandwise.report import write_report
+    from bandwise.core.generate import nodes_for_tet_box, scrambled, tet_grid
+    from bandwise.faces.report import write_report
 
     k = nodes_for_tet_box(nodes)
     model = scrambled(tet_grid(k, k, k), seed=1)

@@ -6,7 +6,7 @@ into a temporary folder, then in the same run times
 1. ``meshio.read`` of that file (the baseline),
 2. the kinematic analysis: supports resolved on two faces and a corner, the
    face-connected blocks, the rigid-body system and its null space
-   (:func:`bandwise.rigid.zero_energy_modes`),
+   (:func:`bandwise.algorithms.rigid.zero_energy_modes`),
 
 and prints both side by side with their ratio (target: at most 1.0).
 
@@ -25,12 +25,12 @@ from pathlib import Path
 import meshio
 import numpy as np
 
-from bandwise.dofs import dof_layout
-from bandwise.generate import nodes_for_tet_box, tet_grid
-from bandwise.meshio_io import model_from_meshio, to_meshio
-from bandwise.rigid import zero_energy_modes
-from bandwise.supports import apply_supports, parse_support
-from bandwise.topology import face_connected_blocks
+from bandwise.algorithms.rigid import zero_energy_modes
+from bandwise.algorithms.supports import apply_supports, parse_support
+from bandwise.algorithms.topology import face_connected_blocks
+from bandwise.core.dofs import dof_layout
+from bandwise.core.generate import nodes_for_tet_box, tet_grid
+from bandwise.formats.meshio_io import model_from_meshio, to_meshio
 
 
 def _best(func, repeat: int) -> tuple[float, object]:

@@ -58,9 +58,9 @@ def seed_files(folder: Path) -> list[Path]:
     """Valid mesh files of every format bandwise reads and writes, in ``folder``."""
     import numpy as np
 
-    from bandwise.generate import hex_grid
-    from bandwise.meshio_io import write_model
-    from bandwise.model import CellBlock, Model
+    from bandwise.core.generate import hex_grid
+    from bandwise.core.model import CellBlock, Model
+    from bandwise.formats.meshio_io import write_model
 
     box = hex_grid(4, 3, 2)
     hexes = box.cells[0].data
@@ -279,7 +279,7 @@ def in_process_runner() -> Callable[[list[str]], tuple[int, str, str]]:
     """Run the command line in this interpreter (many more cases per minute)."""
     from typer.testing import CliRunner
 
-    from bandwise.cli import app, load_commands
+    from bandwise.faces.cli import app, load_commands
 
     load_commands()
     try:

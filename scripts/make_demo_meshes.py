@@ -22,9 +22,9 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from bandwise.generate import _KUHN, _oriented, hex_grid, scrambled, triangle_grid
-from bandwise.meshio_io import write_model
-from bandwise.model import CellBlock, Model
+from bandwise.core.generate import _KUHN, _oriented, hex_grid, scrambled, triangle_grid
+from bandwise.core.model import CellBlock, Model
+from bandwise.formats.meshio_io import write_model
 
 MM = 1.0  # coordinates in millimetres
 

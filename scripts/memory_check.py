@@ -61,13 +61,13 @@ def warm_up(suffix: str, ordering: str | None) -> None:
 
 def measure(path: Path | None, ordering: str | None, suffix: str = ".vtu") -> dict[str, float]:
     """Peak growth while reading, building the graph, measuring (and ordering) one mesh."""
-    from bandwise.generate import tet_grid
-    from bandwise.graph import node_graph
-    from bandwise.memory import BASELINE_BYTES, memory_estimate
-    from bandwise.meshio_io import read_model, write_model
-    from bandwise.metrics import metrics
-    from bandwise.orderings import ORDERINGS, load_all
-    from bandwise.summary import count_parts
+    from bandwise.algorithms.orderings import ORDERINGS, load_all
+    from bandwise.core.generate import tet_grid
+    from bandwise.core.graph import node_graph
+    from bandwise.core.memory import BASELINE_BYTES, memory_estimate
+    from bandwise.core.metrics import metrics
+    from bandwise.core.summary import count_parts
+    from bandwise.formats.meshio_io import read_model, write_model
 
     load_all()
     with tempfile.TemporaryDirectory() as tmp:  # warm up: imports and cached kernels
@@ -118,8 +118,8 @@ def main() -> None:
             if not args.nodes:
                 parser.error("give a mesh file or --nodes")
             path = Path(tmp) / "box.vtu"
-            code = ("from bandwise.generate import tet_grid, nodes_for_tet_box as k;"
-                    "from bandwise.meshio_io import write_model;"
+            code = ("from bandwise.core.generate import tet_grid, nodes_for_tet_box as k;"
+                    "from bandwise.formats.meshio_io import write_model;"
                     f"e = k({args.nodes}); write_model(tet_grid(e, e, e), {str(path)!r})")
             subprocess.run([sys.executable, "-c", code], check=True)
         warm_up(path.suffix, args.ordering)

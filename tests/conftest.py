@@ -64,7 +64,7 @@ def runner():
 @pytest.fixture
 def cli_app():
     """The bandwise typer app with every command registered."""
-    from bandwise.cli import app, load_commands
+    from bandwise.faces.cli import app, load_commands
 
     load_commands()
     return app

@@ -7,9 +7,9 @@ import json
 import numpy as np
 import pytest
 
-from bandwise.generate import quad_grid
-from bandwise.meshio_io import write_model
-from bandwise.model import CellBlock, Model
+from bandwise.core.generate import quad_grid
+from bandwise.core.model import CellBlock, Model
+from bandwise.formats.meshio_io import write_model
 
 
 def _plates(gap: float = 0.0) -> Model:

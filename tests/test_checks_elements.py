@@ -17,15 +17,15 @@ from hypothesis import given
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from bandwise.checks import run_checks
-from bandwise.checks.measures import (
+from bandwise.algorithms.checks import run_checks
+from bandwise.algorithms.checks.measures import (
     corner_jacobians,
     plane_signed_area,
     solid_measures,
     solid_volume,
 )
-from bandwise.generate import hex_grid, quad_grid, tet_grid, triangle_grid
-from bandwise.model import CellBlock, Model
+from bandwise.core.generate import hex_grid, quad_grid, tet_grid, triangle_grid
+from bandwise.core.model import CellBlock, Model
 
 coords = arrays(np.float64, (4, 3), elements=st.floats(-10, 10, allow_nan=False))
 

@@ -13,10 +13,10 @@ from hypothesis import given
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import connected_components
 
-from bandwise.checks import CheckOptions, articulation_nodes, run_checks
-from bandwise.checks.context import CheckContext
-from bandwise.graph import node_graph
-from bandwise.model import CellBlock, Model
+from bandwise.algorithms.checks import CheckOptions, articulation_nodes, run_checks
+from bandwise.algorithms.checks.context import CheckContext
+from bandwise.core.graph import node_graph
+from bandwise.core.model import CellBlock, Model
 
 
 @st.composite

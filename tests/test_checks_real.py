@@ -16,9 +16,9 @@ import json
 
 import pytest
 
-from bandwise.checks import run_checks
-from bandwise.errors import MeshReadError
-from bandwise.meshio_io import model_from_meshio, read_model
+from bandwise.algorithms.checks import run_checks
+from bandwise.core.errors import MeshReadError
+from bandwise.formats.meshio_io import model_from_meshio, read_model
 
 
 def _entries():

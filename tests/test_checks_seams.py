@@ -11,10 +11,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from bandwise.checks import CheckOptions, run_checks
-from bandwise.errors import InputError
-from bandwise.generate import hex_grid, quad_grid
-from bandwise.model import CellBlock, Model
+from bandwise.algorithms.checks import CheckOptions, run_checks
+from bandwise.core.errors import InputError
+from bandwise.core.generate import hex_grid, quad_grid
+from bandwise.core.model import CellBlock, Model
 
 
 def _codes(model, **opts):
@@ -154,7 +154,7 @@ def test_facet_table_built_on_a_second_thread_gives_the_same_findings(monkeypatc
     # Same mesh, same findings (and order) whether the facet table is built
     # alongside the other checks or before them: the run order of the checks
     # must not leak into the result (common practice for a concurrent step).
-    import bandwise.checks as checks
+    import bandwise.algorithms.checks as checks
 
     model = _cube_and_copy((1, 1, 1), {0: 7})
     before = [f.to_dict() for f in run_checks(model)]

@@ -1,4 +1,4 @@
-"""Facets and face-connected blocks (bandwise.topology), checked by construction.
+"""Facets and face-connected blocks (bandwise.algorithms.topology), checked by construction.
 
 A slow, obvious reference implementation (facets in a dict, blocks by
 networkx connected components) checks the compiled facet table on random
@@ -14,10 +14,8 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from bandwise import topology
-from bandwise.generate import hex_grid, quad_grid, tet_grid, triangle_grid
-from bandwise.model import CellBlock, Model
-from bandwise.topology import (
+from bandwise.algorithms import topology
+from bandwise.algorithms.topology import (
     block_nodes,
     face_connected_blocks,
     facet_table,
@@ -25,6 +23,8 @@ from bandwise.topology import (
     group_node_sets,
     local_facets,
 )
+from bandwise.core.generate import hex_grid, quad_grid, tet_grid, triangle_grid
+from bandwise.core.model import CellBlock, Model
 
 UNIT = {
     "tetra": np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]], float),
@@ -122,7 +122,7 @@ def test_cubes_sharing_a_face_are_one_block():
 
 def test_tag_cells_get_no_block():
     # A triangle lying on a tetrahedron's face is a boundary/tag cell (rule of
-    # bandwise.dofs): label -1, like a vertex cell.
+    # bandwise.core.dofs): label -1, like a vertex cell.
     m = tet_grid(2, 2, 2)
     face = m.cells[0].data[0, :3]
     m = Model(points=m.points, cells=[m.cells[0], CellBlock("triangle", face[None]),

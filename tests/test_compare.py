@@ -14,22 +14,22 @@ import pytest
 import scipy.sparse as sp
 from scipy.sparse.csgraph import reverse_cuthill_mckee
 
-import bandwise.compare as compare_mod
-from bandwise.compare import OBJECTIVES, compare_orderings
-from bandwise.dofs import dof_layout
-from bandwise.errors import InputError
-from bandwise.frontal import (
+import bandwise.algorithms.orderings.compare as compare_mod
+from bandwise.algorithms.orderings import OrderingInfo
+from bandwise.algorithms.orderings.compare import OBJECTIVES, compare_orderings
+from bandwise.algorithms.orderings.frontal import (
     element_order,
     front_width,
     frontal_reordering,
     reordered_elements,
     stiffness_cells,
 )
-from bandwise.generate import hex_grid, quad_grid, scrambled, triangle_grid
-from bandwise.graph import NodeGraph, node_graph
-from bandwise.metrics import metrics
-from bandwise.model import CellBlock, Model
-from bandwise.orderings import OrderingInfo
+from bandwise.core.dofs import dof_layout
+from bandwise.core.errors import InputError
+from bandwise.core.generate import hex_grid, quad_grid, scrambled, triangle_grid
+from bandwise.core.graph import NodeGraph, node_graph
+from bandwise.core.metrics import metrics
+from bandwise.core.model import CellBlock, Model
 
 
 def _scipy_rcm(graph: NodeGraph) -> np.ndarray:
@@ -170,7 +170,7 @@ def test_fill_is_skipped_on_large_graphs_unless_it_is_the_objective(registry):
 
 def test_dof_level_figures_follow_the_closed_form(registry):
     # b_dof = d*b + d - 1 for d DOFs per node numbered node after node
-    # (bandwise.metrics, from the definitions of George and Liu 1981).
+    # (bandwise.core.metrics, from the definitions of George and Liu 1981).
     model = scrambled(quad_grid(8, 5), seed=1)
     layout = dof_layout(model)             # plane quads: 2 DOFs per node
     comp = compare_orderings(node_graph(model), ["scipy-rcm"], "bandwidth", layout)
@@ -265,7 +265,7 @@ def test_element_order_is_a_permutation_of_each_block():
 def test_front_never_exceeds_the_nodal_wavefront():
     # With elements sorted by lowest node, node v is in the front exactly from
     # the elements of lowest node f_v to those of lowest node v, so the front
-    # is bounded by the matrix wavefront (argued in bandwise.frontal from the
+    # is bounded by the matrix wavefront (argued in bandwise.algorithms.orderings.frontal from the
     # definitions of Irons 1970 and George and Liu 1981).
     for seed in range(4):
         model = scrambled(triangle_grid(7, 9), seed=seed)

@@ -9,11 +9,10 @@ objective beside RCM and is not run for it.
 
 from __future__ import annotations
 
-from bandwise import compare
-from bandwise.generate import tet_grid
-from bandwise.graph import node_graph
-from bandwise.metrics import metrics
-from bandwise.orderings import ORDERINGS, load_all
+from bandwise.algorithms.orderings import ORDERINGS, compare, load_all
+from bandwise.core.generate import tet_grid
+from bandwise.core.graph import node_graph
+from bandwise.core.metrics import metrics
 
 
 def names(comparison):

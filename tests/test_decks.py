@@ -20,9 +20,12 @@ import numpy as np
 import pytest
 from conftest import shared_path
 
-from bandwise.decks import (
+from bandwise.core.dofs import dof_layout
+from bandwise.core.errors import InputError, MeshReadError
+from bandwise.core.graph import graph_from_cells, node_graph
+from bandwise.core.summary import count_parts
+from bandwise.formats.decks import (
     deck_links,
-    deck_support_set,
     deck_supports,
     new_ids,
     parse_bulk_deck,
@@ -30,10 +33,7 @@ from bandwise.decks import (
     read_deck,
     renumber_deck,
 )
-from bandwise.dofs import dof_layout
-from bandwise.errors import InputError, MeshReadError
-from bandwise.graph import graph_from_cells, node_graph
-from bandwise.summary import count_parts
+from bandwise.workflows.deck_inputs import deck_support_set
 
 # decks meshio reads correctly (per the shared data README), and two it cannot
 MESHIO_DECKS = [
@@ -467,7 +467,7 @@ def test_cli_renumbers_a_deck_in_place(tmp_path, runner, cli_app):
         assert line in out.read_text()
     # the node map of the run gives the new position; the new id is the position-th
     # smallest original id (here ids 1..9: the same number)
-    from bandwise.node_map import read_node_map
+    from bandwise.formats.node_map import read_node_map
 
     new_of_old = read_node_map(doc["node_map"]).new_of_old
     ids = {int(deck.node_ids[k]): int(new_of_old[k]) + 1 for k in range(deck.n_nodes)}

@@ -18,14 +18,15 @@ import scipy.sparse as sp
 from hypothesis import given
 from hypothesis import strategies as st
 
-from bandwise.dofs import dof_layout
-from bandwise.equations import equation_numbering, write_dof_map
-from bandwise.errors import InputError, MeshWriteError
-from bandwise.generate import hex_grid, line_frame, quad_grid
-from bandwise.graph import node_graph
-from bandwise.metrics import metrics
-from bandwise.model import CellBlock, Model
-from bandwise.supports import apply_supports, parse_support
+from bandwise.algorithms.supports import apply_supports, parse_support
+from bandwise.core.dofs import dof_layout
+from bandwise.core.equations import equation_numbering
+from bandwise.core.errors import InputError, MeshWriteError
+from bandwise.core.generate import hex_grid, line_frame, quad_grid
+from bandwise.core.graph import node_graph
+from bandwise.core.metrics import metrics
+from bandwise.core.model import CellBlock, Model
+from bandwise.formats.node_map import write_dof_map
 
 
 def _reference_figures(graph, layout, fixed, perm):

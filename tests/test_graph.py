@@ -15,10 +15,10 @@ from conftest import MESHES, shared_path
 from hypothesis import given
 from hypothesis import strategies as st
 
-from bandwise.generate import hex_grid, tet_grid
-from bandwise.graph import graph_from_cells, graph_from_matrix, node_graph
-from bandwise.meshio_io import read_model
-from bandwise.model import CellBlock, Model
+from bandwise.core.generate import hex_grid, tet_grid
+from bandwise.core.graph import graph_from_cells, graph_from_matrix, node_graph
+from bandwise.core.model import CellBlock, Model
+from bandwise.formats.meshio_io import read_model
 
 
 def reference_adjacency(blocks, n):
@@ -103,7 +103,7 @@ def test_component_labels_match_scipy(seed, keep):
     # Reference library: scipy.sparse.csgraph.connected_components.
     from scipy.sparse.csgraph import connected_components
 
-    from bandwise.graph import component_labels
+    from bandwise.core.graph import component_labels
 
     rng = np.random.default_rng(seed)
     model = tet_grid(4, 4, 3)

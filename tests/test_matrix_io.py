@@ -17,9 +17,10 @@ import scipy.io
 import scipy.sparse as sp
 from conftest import shared_path
 
-from bandwise.errors import MeshReadError
-from bandwise.graph import graph_from_matrix
-from bandwise.matrix_io import (
+from bandwise.core.errors import MeshReadError
+from bandwise.core.graph import graph_from_matrix
+from bandwise.core.metrics import metrics
+from bandwise.formats.matrix_io import (
     is_matrix_file,
     matrix_market_text,
     permuted_matrix,
@@ -27,7 +28,6 @@ from bandwise.matrix_io import (
     read_matrix_data,
     write_matrix_market,
 )
-from bandwise.metrics import metrics
 
 FIXED_FORMAT = ["can_24.psa", "bcsstk01.rsa", "bcsstk02.rsa", "bcsstk01.rb"]
 
@@ -197,7 +197,7 @@ def test_matrix_file_names():
 def test_parts_of_every_matrix_match_the_published_components():
     # published.csv "components": connected components of the pattern's graph
     # (isolated rows count as components of their own).
-    from bandwise.matrix_io import summarise_matrix
+    from bandwise.formats.matrix_io import summarise_matrix
 
     for row in _published():
         s = summarise_matrix(read_matrix_data(shared_path("matrices", f"{row['name']}.mtx")))

@@ -15,16 +15,16 @@ from pathlib import Path
 
 import pytest
 
-from bandwise import memory
-from bandwise.errors import InputError, MeshReadError
-from bandwise.generate import tet_grid
-from bandwise.memory import (
+from bandwise.core import memory
+from bandwise.core.errors import InputError, MeshReadError
+from bandwise.core.generate import tet_grid
+from bandwise.core.memory import (
     check_fits,
     estimate_bytes,
     header_counts,
     memory_estimate,
 )
-from bandwise.meshio_io import read_model, write_model
+from bandwise.formats.meshio_io import read_model, write_model
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -82,7 +82,7 @@ def test_header_counts_match_the_full_read(fmt, ext, tmp_path):
 def test_header_counts_of_ascii_gmsh41(tmp_path):
     import meshio
 
-    from bandwise.meshio_io import to_meshio
+    from bandwise.formats.meshio_io import to_meshio
 
     path = tmp_path / "box.msh"
     mesh = to_meshio(tet_grid(4, 4, 4))
@@ -116,7 +116,7 @@ def test_gmsh41_counts_contradicting_their_blocks_are_refused(tmp_path):
     """A 4.1 header with no entity block but nodes to come: meshio would return garbage."""
     import meshio
 
-    from bandwise.meshio_io import to_meshio
+    from bandwise.formats.meshio_io import to_meshio
 
     path = tmp_path / "box.msh"
     mesh = to_meshio(tet_grid(3, 3, 3))
@@ -137,7 +137,7 @@ def test_too_large_file_refused_before_reading(tmp_path, monkeypatch):
     def no_read():
         raise AssertionError("the file was read although its header was enough")
 
-    monkeypatch.setattr("bandwise.meshio_io._meshio", no_read)
+    monkeypatch.setattr("bandwise.formats.meshio_io._meshio", no_read)
     with pytest.raises(InputError, match="needs about"):
         read_model(path)
 

@@ -1,4 +1,4 @@
-"""Merging coincident nodes (bandwise.merge and ``bandwise merge``).
+"""Merging coincident nodes (bandwise.algorithms.merge and ``bandwise merge``).
 
 Known answers by construction: two plates meshed apart share a seam of 3
 coincident node pairs; merged, they are one part of 21 nodes.  The k-d tree
@@ -16,13 +16,13 @@ from hypothesis import given
 from hypothesis import strategies as st
 from scipy.spatial.distance import pdist, squareform
 
-from bandwise.checks import run_checks
-from bandwise.generate import quad_grid
-from bandwise.graph import node_graph
-from bandwise.merge import coincident_pairs, merged_model
-from bandwise.meshio_io import read_model, write_model
-from bandwise.model import CellBlock, Model
-from bandwise.summary import count_parts
+from bandwise.algorithms.checks import run_checks
+from bandwise.algorithms.merge import coincident_pairs, merged_model
+from bandwise.core.generate import quad_grid
+from bandwise.core.graph import node_graph
+from bandwise.core.model import CellBlock, Model
+from bandwise.core.summary import count_parts
+from bandwise.formats.meshio_io import read_model, write_model
 
 
 def two_plates() -> Model:

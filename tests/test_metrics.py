@@ -17,9 +17,9 @@ import scipy.sparse as sp
 from hypothesis import given
 from hypothesis import strategies as st
 
-from bandwise.generate import hex_grid, quad_grid, tet_grid, triangle_grid
-from bandwise.graph import node_graph
-from bandwise.metrics import column_heights, metrics, wavefront_profile
+from bandwise.core.generate import hex_grid, quad_grid, tet_grid, triangle_grid
+from bandwise.core.graph import node_graph
+from bandwise.core.metrics import column_heights, metrics, wavefront_profile
 
 
 def definition_figures(matrix: sp.spmatrix) -> dict[str, float]:
@@ -114,7 +114,7 @@ def test_tridiagonal_worked_example():
     # A path of 5 nodes numbered in order is tridiagonal: b = 1, P = n - 1,
     # every wavefront 2 except the last row (1); envelope work sum b(b+3)/2 = 2(n-1)
     # (George and Liu 1981, envelope method on a band matrix).
-    from bandwise.generate import line_frame
+    from bandwise.core.generate import line_frame
 
     pts = np.column_stack([np.arange(5.0), np.zeros(5)])
     g = node_graph(line_frame(pts, np.array([[0, 1], [1, 2], [2, 3], [3, 4]])))
@@ -141,7 +141,7 @@ def test_plot_curves_agree_with_the_figures():
 
 
 def test_bad_permutation_is_refused():
-    from bandwise.errors import InputError
+    from bandwise.core.errors import InputError
 
     graph = node_graph(quad_grid(3, 3))
     with pytest.raises(InputError):

@@ -24,16 +24,23 @@ from hypothesis import strategies as st
 from scipy.sparse.csgraph import connected_components
 from scipy.sparse.csgraph import reverse_cuthill_mckee as scipy_rcm
 
-from bandwise.errors import InputError
-from bandwise.generate import hex_grid, line_frame, quad_grid, scrambled, tet_grid, triangle_grid
-from bandwise.graph import NodeGraph, graph_from_matrix, node_graph
-from bandwise.metrics import metrics
-from bandwise.model import CellBlock, Model
-from bandwise.orderings import ORDERINGS
-from bandwise.orderings._levels import pseudo_diameter, rooted_levels
-from bandwise.orderings.cuthill_mckee import cuthill_mckee, reverse_cuthill_mckee
-from bandwise.orderings.gps import gps
-from bandwise.orderings.sloan import sloan
+from bandwise.algorithms.orderings import ORDERINGS
+from bandwise.algorithms.orderings._levels import pseudo_diameter, rooted_levels
+from bandwise.algorithms.orderings.cuthill_mckee import cuthill_mckee, reverse_cuthill_mckee
+from bandwise.algorithms.orderings.gps import gps
+from bandwise.algorithms.orderings.sloan import sloan
+from bandwise.core.errors import InputError
+from bandwise.core.generate import (
+    hex_grid,
+    line_frame,
+    quad_grid,
+    scrambled,
+    tet_grid,
+    triangle_grid,
+)
+from bandwise.core.graph import NodeGraph, graph_from_matrix, node_graph
+from bandwise.core.metrics import metrics
+from bandwise.core.model import CellBlock, Model
 
 ORDERS = {
     "cm": cuthill_mckee,
@@ -380,7 +387,7 @@ def test_docstring_examples(module):
     import doctest
     import importlib
 
-    result = doctest.testmod(importlib.import_module(f"bandwise.orderings.{module}"))
+    result = doctest.testmod(importlib.import_module(f"bandwise.algorithms.orderings.{module}"))
     assert result.attempted > 0
     assert result.failed == 0
 

@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 from conftest import MESHES
 
-from bandwise.meshio_io import read_model
-from bandwise.model import CellBlock, Model
+from bandwise.core.model import CellBlock, Model
+from bandwise.formats.meshio_io import read_model
 
 
 def sha(path):
@@ -164,7 +164,7 @@ def test_atomic_text_output_gets_ordinary_permissions(tmp_path):
     # file the user's umask allows (common practice of atomic writers).
     import os
 
-    from bandwise.atomic import write_text_atomic
+    from bandwise.formats.atomic import write_text_atomic
 
     mask = os.umask(0o022)
     try:
@@ -193,8 +193,8 @@ def test_cells_of_the_wrong_width_are_a_damaged_file(cell_type, width):
     # quad block of zero nodes per cell, which then failed deep in the checks.
     # A quad has 4 nodes, a tetra 4, a tetra10 10 (meshio cell type names, the
     # VTK cell types; common practice).
-    from bandwise.errors import MeshReadError
-    from bandwise.meshio_io import validate_model
+    from bandwise.core.errors import MeshReadError
+    from bandwise.formats.meshio_io import validate_model
 
     model = Model(points=np.zeros((5, 3)),
                   cells=[CellBlock(cell_type, np.zeros((3, width), dtype=np.int64))])

@@ -20,16 +20,16 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import reverse_cuthill_mckee
 
-import bandwise.compare as compare_mod
-from bandwise.errors import MeshReadError
-from bandwise.generate import quad_grid, scrambled, triangle_grid
-from bandwise.graph import NodeGraph, node_graph
-from bandwise.matrix_io import read_matrix_data
-from bandwise.meshio_io import read_model, write_model
-from bandwise.metrics import metrics
-from bandwise.model import CellBlock, Model
-from bandwise.node_map import node_map_text, read_node_map, write_node_map
-from bandwise.orderings import OrderingInfo
+import bandwise.algorithms.orderings.compare as compare_mod
+from bandwise.algorithms.orderings import OrderingInfo
+from bandwise.core.errors import MeshReadError
+from bandwise.core.generate import quad_grid, scrambled, triangle_grid
+from bandwise.core.graph import NodeGraph, node_graph
+from bandwise.core.metrics import metrics
+from bandwise.core.model import CellBlock, Model
+from bandwise.formats.matrix_io import read_matrix_data
+from bandwise.formats.meshio_io import read_model, write_model
+from bandwise.formats.node_map import node_map_text, read_node_map, write_node_map
 
 CALLS: list[dict] = []
 
@@ -224,7 +224,7 @@ def test_element_order_keeps_cell_fields_with_their_cells(runner, cli_app, order
     pairs_out = {(tuple(sorted(c)), int(v)) for c, v in
                  zip(restored.cells[0].data, restored.cell_data["material"][0])}
     assert pairs_in == pairs_out
-    # elements now in ascending order of their lowest new node (bandwise.frontal)
+    # elements now in ascending order of their lowest new node (bandwise.algorithms.orderings.frontal)
     assert np.all(np.diff(back.cells[0].data.min(axis=1)) >= 0)
 
 

@@ -15,12 +15,12 @@ import json
 
 from conftest import MESHES
 
-from bandwise.dofs import dof_layout
-from bandwise.equations import equation_numbering
-from bandwise.graph import node_graph
-from bandwise.meshio_io import read_model
-from bandwise.node_map import read_node_map
-from bandwise.supports import apply_supports, parse_support
+from bandwise.algorithms.supports import apply_supports, parse_support
+from bandwise.core.dofs import dof_layout
+from bandwise.core.equations import equation_numbering
+from bandwise.core.graph import node_graph
+from bandwise.formats.meshio_io import read_model
+from bandwise.formats.node_map import read_node_map
 
 
 def test_renumber_reports_the_reduced_system_and_writes_the_dof_map(runner, cli_app, tmp_path):

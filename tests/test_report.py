@@ -26,18 +26,18 @@ import scipy.sparse as sp
 from conftest import shared_path
 from scipy.sparse.csgraph import reverse_cuthill_mckee
 
-from bandwise.caution import CAUTION
-from bandwise.checks.findings import Finding
-from bandwise.dofs import dof_layout
-from bandwise.errors import MeshWriteError
-from bandwise.generate import hex_grid, quad_grid, scrambled, tet_grid
-from bandwise.graph import node_graph
-from bandwise.model import CellBlock, Model
-from bandwise.report import ReportInputs, report_document, verdict, write_report
-from bandwise.report import build as report_build
-from bandwise.report.meshview import mesh_view, node_parts, outer_faces
-from bandwise.report.sampling import envelope, pattern_image
-from bandwise.summary import summarise
+from bandwise.algorithms.checks.findings import Finding
+from bandwise.core.caution import CAUTION
+from bandwise.core.dofs import dof_layout
+from bandwise.core.errors import MeshWriteError
+from bandwise.core.generate import hex_grid, quad_grid, scrambled, tet_grid
+from bandwise.core.graph import node_graph
+from bandwise.core.model import CellBlock, Model
+from bandwise.core.summary import summarise
+from bandwise.faces.report import ReportInputs, report_document, verdict, write_report
+from bandwise.faces.report import build as report_build
+from bandwise.faces.report.meshview import mesh_view, node_parts, outer_faces
+from bandwise.faces.report.sampling import envelope, pattern_image
 
 ROOT = Path(__file__).resolve().parent.parent
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification, 2003, section 5.2
@@ -220,7 +220,7 @@ def test_findings_sorted_errors_first_with_ids_and_marks():
     assert doc["verdict"]["status"] == "problems found"
     marks = report_build.finding_marks(inputs)
     assert marks["coincident"].tolist() == [4, 8]      # labels are 1-based positions
-    from bandwise.report.html import findings_section
+    from bandwise.faces.report.html import findings_section
     section = findings_section(doc, "")
     assert section.index("nodes.coincident") < section.index("parts.info")
     assert "5, 9" in section
@@ -403,7 +403,7 @@ def full_report(tmp_path_factory):
     """``bandwise report`` on the demo bracket held at one corner node (all translations)."""
     from typer.testing import CliRunner
 
-    from bandwise.cli import app, load_commands
+    from bandwise.faces.cli import app, load_commands
 
     load_commands()
     out = tmp_path_factory.mktemp("full") / "report"
@@ -453,7 +453,7 @@ def test_full_report_every_json_figure_is_in_the_html(full_report):
 
 def test_real_findings_marked_on_two_blocks_and_an_orphan(tmp_path):
     """Two hexahedral blocks apart, a far orphan node and an orphan on top of node 1."""
-    from bandwise.checks import run_checks
+    from bandwise.algorithms.checks import run_checks
 
     a, b = hex_grid(5, 4, 3), hex_grid(3, 3, 3)
     points = np.concatenate([a.points, b.points + [6.0, 0.0, 0.0], [[20.0, 20.0, 20.0]],
@@ -515,7 +515,7 @@ def test_mesh_axes_draws_given_mode_arrows():
     """A displacement field given per node is drawn as arrows, projected to the picture."""
     from matplotlib.quiver import Quiver
 
-    from bandwise.report.figures import mesh_axes
+    from bandwise.faces.report.figures import mesh_axes
 
     model = hex_grid(3, 3, 3)
     view = mesh_view(model, node_graph(model))
@@ -532,8 +532,8 @@ def test_free_motion_of_a_block_pinned_at_one_node_is_a_rotation_about_it():
     # rigid-body theory: a 3D body with all translations of one node held keeps the
     # three rotations about that node; the null space of K is exactly those motions
     # (K. J. Bathe, Finite Element Procedures, 1996, sec. 10.2.4)
-    from bandwise.report.modeshape import free_motion
-    from bandwise.supports import apply_supports, parse_support
+    from bandwise.algorithms.supports import apply_supports, parse_support
+    from bandwise.faces.report.modeshape import free_motion
 
     model = hex_grid(4, 3, 3)
     layout = dof_layout(model)
@@ -555,7 +555,7 @@ def test_free_motion_of_a_block_pinned_at_one_node_is_a_rotation_about_it():
 
 
 def test_arrows_only_at_drawn_nodes_and_few(full_report):
-    from bandwise.report.build import MAX_ARROWS
+    from bandwise.faces.report.build import MAX_ARROWS
 
     _, _, doc = full_report
     caption = next(f["caption"] for f in doc["figures"] if f["file"] == "mesh.png")
@@ -569,7 +569,7 @@ def test_arrows_only_at_drawn_nodes_and_few(full_report):
 
 
 def read_model_for_test(name: str):
-    from bandwise.meshio_io import read_model
+    from bandwise.formats.meshio_io import read_model
 
     return read_model(ROOT / "meshes" / name)
 
@@ -578,7 +578,7 @@ def test_palettes_stay_apart_in_grey():
     """Neighbouring part colours and the two curves differ in luminance (ITU-R BT.709 weights)."""
     from matplotlib.colors import to_rgb
 
-    from bandwise.report.style import AFTER, BEFORE, PARTS
+    from bandwise.faces.report.style import AFTER, BEFORE, PARTS
 
     def grey(colour: str) -> float:
         r, g, b = to_rgb(colour)
@@ -592,7 +592,7 @@ def test_palettes_stay_apart_in_grey():
 
 
 def test_report_folder_one_per_input_when_several(tmp_path):
-    from bandwise.cli.report_cmd import report_folder
+    from bandwise.faces.cli.report_cmd import report_folder
 
     out = tmp_path / "reports"
     assert report_folder(out, Path("a/bracket.msh"), 1) == out and not out.exists()
@@ -649,7 +649,7 @@ def test_renumber_report_option(runner, cli_app, tmp_path):
 
 def report_document_comparison(comparison: dict) -> dict:
     """The comparison as the report stores it: the command's own, plus the Cholesky storage."""
-    from bandwise.report.document import cholesky_bytes
+    from bandwise.faces.report.document import cholesky_bytes
 
     out = json.loads(json.dumps(comparison))
     for row in out["methods"]:

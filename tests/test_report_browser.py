@@ -20,16 +20,16 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from bandwise.checks import run_checks
-from bandwise.compare import compare_orderings
-from bandwise.dofs import dof_layout
-from bandwise.equations import equation_numbering
-from bandwise.generate import scrambled, tet_grid
-from bandwise.graph import node_graph
-from bandwise.report import ReportInputs, write_report
-from bandwise.rigid import zero_energy_modes
-from bandwise.summary import summarise
-from bandwise.supports import apply_supports, parse_support
+from bandwise.algorithms.checks import run_checks
+from bandwise.algorithms.orderings.compare import compare_orderings
+from bandwise.algorithms.rigid import zero_energy_modes
+from bandwise.algorithms.supports import apply_supports, parse_support
+from bandwise.core.dofs import dof_layout
+from bandwise.core.equations import equation_numbering
+from bandwise.core.generate import scrambled, tet_grid
+from bandwise.core.graph import node_graph
+from bandwise.core.summary import summarise
+from bandwise.faces.report import ReportInputs, write_report
 
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
          "--disable-background-networking", "--disable-component-update", "--disable-sync"]

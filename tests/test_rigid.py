@@ -17,12 +17,12 @@ import numpy as np
 from hypothesis import given
 from hypothesis import strategies as st
 
-from bandwise.dofs import dof_layout
-from bandwise.generate import hex_grid, line_frame, quad_grid, tet_grid, triangle_grid
-from bandwise.model import CellBlock, Model
-from bandwise.rigid import zero_energy_modes
-from bandwise.stiffness import verify_stiffness
-from bandwise.supports import apply_supports, parse_support
+from bandwise.algorithms.rigid import zero_energy_modes
+from bandwise.algorithms.stiffness import verify_stiffness
+from bandwise.algorithms.supports import apply_supports, parse_support
+from bandwise.core.dofs import dof_layout
+from bandwise.core.generate import hex_grid, line_frame, quad_grid, tet_grid, triangle_grid
+from bandwise.core.model import CellBlock, Model
 
 
 def _analyse(model, supports=(), **opts):
@@ -294,7 +294,7 @@ def test_json_form_has_totals_per_part_and_modes() -> None:
 def test_large_truss_takes_the_sparse_path_and_matches_calladine() -> None:
     # a 10 x 10 panel grid truss: 121 joints; braced (one diagonal per panel) it is rigid,
     # unbraced its mechanisms are 2j - 3 - rank(equilibrium matrix) (Calladine 1978)
-    from bandwise.rigid import MAX_PART_COORDINATES
+    from bandwise.algorithms.rigid import MAX_PART_COORDINATES
 
     grid = quad_grid(11, 11)
     c = grid.cells[0].data
@@ -316,7 +316,7 @@ def test_hold_choice_ends_when_no_candidate_removes_a_mode():
     # node-by-node choice loop for ever. Each pick must remove at least one mode.
     import threading
 
-    from bandwise.rigid import _pick_holds
+    from bandwise.algorithms.rigid import _pick_holds
 
     w = 1e-9 * np.random.default_rng(3).random((12, 3))
     node_of = np.repeat(np.arange(4), 3)

@@ -12,11 +12,11 @@ from __future__ import annotations
 import numpy as np
 from conftest import TWO_TETS_BULK
 
-from bandwise.dofs import SOLID, dof_layout
-from bandwise.generate import tet_grid
-from bandwise.model import CellBlock, Model
-from bandwise.rigid import Link, link_layout, zero_energy_modes
-from bandwise.supports import SupportSet, no_supports
+from bandwise.algorithms.rigid import Link, link_layout, zero_energy_modes
+from bandwise.algorithms.supports import SupportSet, no_supports
+from bandwise.core.dofs import SOLID, dof_layout
+from bandwise.core.generate import tet_grid
+from bandwise.core.model import CellBlock, Model
 
 
 def _two_blocks(gap: float = 3.0) -> Model:
@@ -126,8 +126,9 @@ def test_kinematic_coupling_of_a_keyword_deck(runner, cli_app, tmp_path) -> None
 def test_rbe2_components_are_read_and_a_missing_node_is_an_error(tmp_path) -> None:
     import pytest
 
-    from bandwise.decks import deck_rigid_links, parse_bulk_deck
-    from bandwise.errors import MeshReadError
+    from bandwise.core.errors import MeshReadError
+    from bandwise.formats.decks import parse_bulk_deck
+    from bandwise.workflows.deck_inputs import deck_rigid_links
 
     text = HANGING_BULK.replace("RBE2         101      99  123456", "RBE2         101      99     123")
     links = deck_rigid_links(parse_bulk_deck(text + "ENDDATA\n", "t.bdf"))

@@ -3,7 +3,7 @@
 The reference is meshio, the open reader/writer of these formats: what it
 reads back must equal what was written, node for node through the inverse
 permutation.  What a format cannot hold must be named by
-:func:`bandwise.formats.losses` (and only that may differ).
+:func:`bandwise.formats.keeps.losses` (and only that may differ).
 """
 
 from __future__ import annotations
@@ -11,11 +11,11 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from bandwise.decks import new_ids, read_deck, renumber_deck
-from bandwise.formats import FORMATS, YES, losses
-from bandwise.generate import hex_grid
-from bandwise.meshio_io import read_model, write_model
-from bandwise.model import CellBlock, Model, inverse_permutation
+from bandwise.core.generate import hex_grid
+from bandwise.core.model import CellBlock, Model, inverse_permutation
+from bandwise.formats.decks import new_ids, read_deck, renumber_deck
+from bandwise.formats.keeps import FORMATS, YES, losses
+from bandwise.formats.meshio_io import read_model, write_model
 
 EXTENSIONS = {"gmsh22": ".msh", "gmsh": ".msh", "vtu": ".vtu", "vtk": ".vtk", "xdmf": ".xdmf",
               "med": ".med", "exodus": ".exo", "abaqus": ".inp", "nastran": ".bdf"}
@@ -182,7 +182,7 @@ def test_deck_path_round_trip(tmp_path):
 
 def test_losses_for_output_follow_the_writer_choice():
     """A gmsh 2.2 source written to .msh stays gmsh 2.2 (write_model's rule), and says so."""
-    from bandwise.formats import losses_for_output, output_format
+    from bandwise.formats.keeps import losses_for_output, output_format
 
     model = rich_model()
     assert output_format(model, "out.xdmf") == "xdmf"

@@ -1,6 +1,6 @@
 """Safe output: every file bandwise writes appears whole or not at all.
 
-Checks: the package writes files only through :mod:`bandwise.atomic` (a
+Checks: the package writes files only through :mod:`bandwise.formats.atomic` (a
 scan of the source); a write that fails (disk full, ``ENOSPC``; a rename
 refused; a format writer raising half way) leaves the previous output
 byte for byte and no temporary file; ``renumber`` never overwrites its
@@ -20,13 +20,13 @@ import numpy as np
 import pytest
 
 import bandwise
-from bandwise import atomic
-from bandwise.decks import read_deck
-from bandwise.decks.files import write_renumbered_deck
-from bandwise.errors import MeshWriteError
-from bandwise.generate import quad_grid, scrambled
-from bandwise.meshio_io import write_model
-from bandwise.node_map import write_node_map
+from bandwise.core.errors import MeshWriteError
+from bandwise.core.generate import quad_grid, scrambled
+from bandwise.formats import atomic
+from bandwise.formats.decks import read_deck
+from bandwise.formats.decks.files import write_renumbered_deck
+from bandwise.formats.meshio_io import write_model
+from bandwise.formats.node_map import write_node_map
 
 PACKAGE = Path(bandwise.__file__).resolve().parent
 
@@ -35,10 +35,10 @@ WRITING_ATTRS = {"write_text", "write_bytes", "tofile", "savetxt", "savez", "sav
                  "replace", "rename", "move", "copy", "copyfile", "copy2"}
 #: (module, function) allowed to write outside ``with atomic_folder(...)``, and why.
 ALLOWED = {
-    ("atomic.py", "atomic_folder"): "the atomic layer itself",
-    ("atomic.py", "write_bytes_atomic"): "the atomic layer itself",
-    ("report/build.py", "write_report"): "files written into its own temporary folder",
-    ("report/build.py", "_publish"): "moves the finished temporary folder's files into place",
+    ("formats/atomic.py", "atomic_folder"): "the atomic layer itself",
+    ("formats/atomic.py", "write_bytes_atomic"): "the atomic layer itself",
+    ("faces/report/build.py", "write_report"): "files written into its own temporary folder",
+    ("faces/report/build.py", "_publish"): "moves the finished temporary folder's files into place",
 }
 
 

@@ -21,16 +21,21 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.sparse.csgraph import connected_components
 
-from bandwise import generate
-from bandwise.graph import NodeGraph, graph_from_cells, graph_from_matrix, node_graph
-from bandwise.metrics import metrics
-from bandwise.model import CellBlock, Model
-from bandwise.orderings import ORDERINGS
-from bandwise.orderings.nested_dissection import nested_dissection
-from bandwise.orderings.sloan import sloan
-from bandwise.orderings.spectral import DENSE_LIMIT, fiedler_vector, spectral
-from bandwise.orderings.spectral_sloan import spectral_key, spectral_sloan
-from bandwise.symbolic import cholesky_nnz, column_counts, elimination_tree, factor_flops
+from bandwise.algorithms.orderings import ORDERINGS
+from bandwise.algorithms.orderings.nested_dissection import nested_dissection
+from bandwise.algorithms.orderings.sloan import sloan
+from bandwise.algorithms.orderings.spectral import DENSE_LIMIT, fiedler_vector, spectral
+from bandwise.algorithms.orderings.spectral_sloan import spectral_key, spectral_sloan
+from bandwise.algorithms.orderings.symbolic import (
+    cholesky_nnz,
+    column_counts,
+    elimination_tree,
+    factor_flops,
+)
+from bandwise.core import generate
+from bandwise.core.graph import NodeGraph, graph_from_cells, graph_from_matrix, node_graph
+from bandwise.core.metrics import metrics
+from bandwise.core.model import CellBlock, Model
 
 ORDERING_NAMES = ["spectral", "spectral-sloan", "nd"]
 
@@ -88,7 +93,7 @@ def expanded_pattern(graph: NodeGraph, d: np.ndarray) -> sp.csr_matrix:
        keep=st.lists(st.booleans(), min_size=1, max_size=12))
 def test_every_ordering_is_a_permutation_with_parts_kept_together(name, kind, size, keep):
     # An ordering is a permutation, each index once (George and Liu 1981, ch. 1); the
-    # contract of bandwise.orderings puts each connected part in one block of new numbers.
+    # contract of bandwise.algorithms.orderings puts each connected part in one block of new numbers.
     graph = holed_mesh(kind, size, keep)
     perm = ORDERINGS[name].func(graph)
     assert perm.dtype == np.int64
@@ -272,10 +277,10 @@ def test_mixed_dof_counts_including_nodes_without_dofs():
 
 
 def test_dof_layout_of_a_solid_gives_the_three_dof_count():
-    # A 3D solid carries ux uy uz at every node (common practice, bandwise.dofs): the
+    # A 3D solid carries ux uy uz at every node (common practice, bandwise.core.dofs): the
     # layout-driven count equals the uniform 3-DOF count, 9 nnz(L) - 3n (module formula,
     # checked against kron above).
-    from bandwise.dofs import dof_layout
+    from bandwise.core.dofs import dof_layout
 
     model = generate.scrambled(generate.tet_grid(4, 3, 3), 1)
     graph = node_graph(model)

@@ -14,10 +14,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from bandwise.dofs import dof_layout
-from bandwise.generate import hex_grid, line_frame, quad_grid, tet_grid, triangle_grid
-from bandwise.rigid import zero_energy_modes
-from bandwise.stiffness import (
+from bandwise.algorithms.rigid import zero_energy_modes
+from bandwise.algorithms.stiffness import (
     assemble_stiffness,
     bar_stiffness,
     continuum_stiffness,
@@ -29,7 +27,9 @@ from bandwise.stiffness import (
     space_frame_stiffness,
     verify_stiffness,
 )
-from bandwise.supports import apply_supports, parse_support
+from bandwise.algorithms.supports import apply_supports, parse_support
+from bandwise.core.dofs import dof_layout
+from bandwise.core.generate import hex_grid, line_frame, quad_grid, tet_grid, triangle_grid
 
 NU = 0.3
 
@@ -261,7 +261,7 @@ def test_shift_invert_count_matches_dense() -> None:
 
 def test_unsupported_elements_are_reported_not_guessed() -> None:
     model = tet_grid(2, 2, 2)
-    from bandwise.model import CellBlock, Model
+    from bandwise.core.model import CellBlock, Model
 
     wedge = Model(points=model.points, cells=[CellBlock("wedge", np.array([[0, 1, 2, 4, 5, 6]]))])
     layout = dof_layout(wedge)
@@ -297,7 +297,7 @@ def test_two_bar_line_pinned_at_one_end() -> None:
 
 
 def test_degenerate_elements_are_reported_not_crashed() -> None:
-    from bandwise.model import CellBlock, Model
+    from bandwise.core.model import CellBlock, Model
 
     flat = Model(points=np.array([[0.0, 0, 0], [1, 0, 0], [2, 0, 0], [0, 1, 0], [0, 0, 1.0]]),
                  cells=[CellBlock("tetra", np.array([[0, 1, 2, 3], [0, 1, 3, 4]]))])

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from bandwise.stiffness import (
+from bandwise.algorithms.stiffness import (
     bar_stiffness,
     continuum_stiffness,
     elasticity_matrix,

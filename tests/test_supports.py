@@ -12,18 +12,18 @@ import numpy as np
 import pytest
 from conftest import shared_path
 
-from bandwise.dofs import dof_layout
-from bandwise.errors import InputError
-from bandwise.generate import hex_grid, quad_grid
-from bandwise.meshio_io import read_model
-from bandwise.rigid import zero_energy_modes
-from bandwise.supports import (
+from bandwise.algorithms.rigid import zero_energy_modes
+from bandwise.algorithms.supports import (
     apply_supports,
     check_dofs,
     parse_support,
     read_support_file,
     set_names,
 )
+from bandwise.core.dofs import dof_layout
+from bandwise.core.errors import InputError
+from bandwise.core.generate import hex_grid, quad_grid
+from bandwise.formats.meshio_io import read_model
 
 
 def _held(model, texts, **opts):
@@ -49,7 +49,7 @@ def test_dof_choices() -> None:
     assert fixed.n_fixed_dofs == 3 + 3 + 2 + 2 and fixed.n_supported_nodes == 4
     assert check_dofs("UX, uz") == "ux uz"
     # fixed holds every DOF the node carries: 3 for a plane frame node (ux uy rz)
-    from bandwise.generate import line_frame
+    from bandwise.core.generate import line_frame
 
     frame = line_frame(np.array([[0.0, 0], [1, 0]]), np.array([[0, 1]]))
     held = _held(frame, ["node 1:fixed", "node 2:pinned"])
@@ -186,7 +186,7 @@ def test_gmsh41_cell_sets_and_abaqus_node_sets() -> None:
 
 def _write_plate(tmp_path):
     """A small plane plate (the gusset of our demo, coarse) as a gmsh file."""
-    from bandwise.meshio_io import write_model
+    from bandwise.formats.meshio_io import write_model
 
     model = quad_grid(5, 3, 10.0, 10.0)
     path = tmp_path / "plate.msh"

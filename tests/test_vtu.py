@@ -16,9 +16,9 @@ import meshio
 import numpy as np
 import pytest
 
-from bandwise.errors import MeshReadError
-from bandwise.meshio_io import model_from_meshio, read_model
-from bandwise.vtu import NotHandled, read_vtu
+from bandwise.core.errors import MeshReadError
+from bandwise.formats.meshio_io import model_from_meshio, read_model
+from bandwise.formats.vtu import NotHandled, read_vtu
 from tests.conftest import shared_path
 
 HERE = Path(__file__).resolve().parent.parent

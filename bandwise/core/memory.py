@@ -1,0 +1,304 @@
+"""Memory needed to read, analyse and renumber a mesh, estimated before the work starts.
+
+A mesh too big for the machine should be refused with the figure, not
+crash half way through with the system swapping.  The estimate adds up the
+arrays bandwise actually allocates, stage by stage (the peak is the
+largest stage plus what stays alive from the earlier ones):
+
+- **read**: meshio's arrays and the model's copies: coordinates twice
+  (``24 n`` bytes each), connectivity twice (``8 k`` bytes per cell of ``k``
+  nodes, int64; a text reader's parse buffers are of the same order); a
+  VTU file read by bandwise's own streaming reader (:mod:`bandwise.formats.vtu`)
+  decodes straight into the model's arrays: each once, plus the cell
+  offsets and types (9 bytes a cell);
+- **graph** (:mod:`bandwise.core.graph`): the node-to-element incidence
+  (``n + 1`` int64 pointers, an int16 block and an int32 row per cell
+  node), the neighbour counts and a marker (``8 n`` each), and the CSR
+  result: ``n + 1`` int64 pointers and ``nnz`` int32 neighbours;
+- **metrics** (:mod:`bandwise.core.metrics`): a few int64 vectors of the matrix
+  order at DOF level and one at node level (measured: about 33 bytes per
+  DOF on a 100,000-node tetrahedral box; the part count is a compiled
+  search over the graph, with one label per node);
+- **orderings**: level structures and the graph handed to scipy again
+  (about ``16 n + 12 nnz``).
+
+``nnz`` (twice the number of graph edges) is not known before the graph is
+built; it is taken from the node degree of regular meshes of the main cell
+type (a node of a tetrahedral mesh has about 14 neighbours, of a
+hexahedral one 26: common practice, from structured meshes).
+
+Set the environment variable ``BANDWISE_MEMORY_CHECK=off`` to run anyway.
+"""
+
+from __future__ import annotations
+
+import mmap
+import os
+import re
+import struct
+from dataclasses import asdict, dataclass
+from pathlib import Path
+from typing import Any
+
+from bandwise.core.errors import InputError, MeshReadError
+
+#: Typical number of neighbours of a node, by main cell type (regular meshes).
+DEGREE = {
+    "line": 2, "line3": 2, "triangle": 6, "triangle6": 12, "quad": 8, "quad8": 12, "quad9": 8,
+    "tetra": 14, "tetra10": 27, "hexahedron": 26, "hexahedron20": 44, "hexahedron27": 26,
+    "wedge": 20, "wedge15": 36, "pyramid": 14, "vertex": 0,
+    "unknown": 6,  # a header gives no cell type: the lowest common degree (errs low)
+}
+#: Nodes per cell assumed for cells whose type a header does not give.
+UNKNOWN_CELL_NODES = 4
+#: Bytes of the Python interpreter, numpy, scipy, meshio and numba once loaded.
+BASELINE_BYTES = 180 * 2**20
+
+
+@dataclass(frozen=True)
+class MemoryEstimate:
+    """Estimated bytes of each stage and the peak.
+
+    Attributes
+    ----------
+    read, graph, metrics, orderings
+        Bytes allocated by each stage.
+    peak
+        Largest total alive at once (baseline of the loaded libraries included).
+    nnz
+        Assumed neighbour entries of the node graph.
+    """
+
+    read: int
+    graph: int
+    metrics: int
+    orderings: int
+    peak: int
+    nnz: int
+
+    def to_dict(self) -> dict[str, int]:
+        """The figures as a plain dict (for JSON)."""
+        return asdict(self)
+
+
+def _main_type(n_cells_by_type: dict[str, int]) -> str:
+    counted = {t: c for t, c in n_cells_by_type.items() if t != "vertex" and c}
+    return max(counted, key=counted.get) if counted else "vertex"
+
+
+def _nodes_per_cell(cell_type: str) -> int:
+    from bandwise.core.elements import CORNER_COUNT
+
+    if cell_type in CORNER_COUNT and not cell_type[-1].isdigit():
+        return CORNER_COUNT[cell_type]
+    digits = re.search(r"(\d+)$", cell_type)
+    return int(digits.group(1)) if digits else UNKNOWN_CELL_NODES
+
+
+def memory_estimate(n_nodes: int, n_cells_by_type: dict[str, int], dofs_per_node: int = 3,
+                    orderings: bool = True, streamed: bool = False) -> MemoryEstimate:
+    """Estimate the bytes a mesh needs, stage by stage (see the module notes).
+
+    Parameters
+    ----------
+    n_nodes
+        Number of nodes.
+    n_cells_by_type
+        Cells per meshio cell type; the type ``"unknown"`` counts
+        :data:`UNKNOWN_CELL_NODES` nodes per cell.
+    dofs_per_node
+        DOFs per node for the DOF-level figures.
+    orderings
+        Include the renumbering stage.
+    streamed
+        Read by bandwise's streaming VTU reader rather than by meshio.
+    """
+    n = int(n_nodes)
+    cell_nodes = sum(c * _nodes_per_cell(t) for t, c in n_cells_by_type.items())
+    main = _main_type(n_cells_by_type)
+    nnz = n * DEGREE.get(main, DEGREE["tetra"])
+    if streamed:
+        read = 24 * n + 8 * cell_nodes + 9 * sum(n_cells_by_type.values())
+    else:
+        read = 2 * 24 * n + 2 * 8 * cell_nodes
+    graph = 8 * (n + 1) + 6 * cell_nodes + 8 * 2 * n + 8 * (n + 1) + 4 * nnz
+    ndof = n * max(dofs_per_node, 1)
+    metrics = 4 * 8 * ndof + 8 * n
+    order = (16 * n + 12 * nnz) if orderings else 0
+    alive_after_graph = BASELINE_BYTES + read + 8 * (n + 1) + 4 * nnz
+    peak = max(BASELINE_BYTES + read + graph, alive_after_graph + max(metrics, order))
+    return MemoryEstimate(read, graph, metrics, order, int(peak), int(nnz))
+
+
+def estimate_bytes(n_nodes: int, n_cells_by_type: dict[str, int], dofs_per_node: int = 3,
+                   orderings: bool = True, streamed: bool = False) -> int:
+    """Peak bytes to read, build the graph, measure (and renumber) a mesh.
+
+    >>> estimate_bytes(1_000_000, {"tetra": 5_000_000}) > 10**9
+    True
+    """
+    return memory_estimate(n_nodes, n_cells_by_type, dofs_per_node, orderings, streamed).peak
+
+
+def available_bytes() -> int | None:
+    """Memory the machine can give now: ``MemAvailable`` of ``/proc/meminfo``, else sysconf."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    try:
+        return int(os.sysconf("SC_AVPHYS_PAGES")) * int(os.sysconf("SC_PAGE_SIZE"))
+    except (ValueError, OSError, AttributeError):
+        return None
+
+
+def _human(b: int) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
+        if b < 1024 or unit == "TiB":
+            return f"{b:.0f} {unit}" if unit == "B" else f"{b:.1f} {unit}"
+        b /= 1024
+    return f"{b} B"
+
+
+def check_fits(estimate: int, available: int | None = None, what: str = "this mesh") -> None:
+    """Refuse work that will not fit in memory.
+
+    Parameters
+    ----------
+    estimate
+        Bytes needed (:func:`estimate_bytes`).
+    available
+        Bytes available; None reads them from the machine
+        (:func:`available_bytes`).  When neither is known nothing is refused.
+    what
+        Named in the message.
+
+    Raises
+    ------
+    InputError
+        When ``estimate`` exceeds ``available``, with both figures.
+    """
+    if os.environ.get("BANDWISE_MEMORY_CHECK", "").lower() in ("off", "0", "no"):
+        return
+    if available is None:
+        available = available_bytes()
+    if available is None or estimate <= available:
+        return
+    raise InputError(f"{what} needs about {_human(estimate)} of memory and the machine has "
+                     f"{_human(available)} available; free memory or use a bigger machine "
+                     "(BANDWISE_MEMORY_CHECK=off runs anyway)")
+
+
+_VTU_PIECE = re.compile(rb'NumberOfPoints="(\d+)"\s+NumberOfCells="(\d+)"')
+#: Bytes read from the start of a file to find its counts (VTU).
+HEADER_BYTES = 1 << 16
+#: Fewest bytes a node and an element take in a gmsh file (text, binary): ``"1 0 0\n"``, three
+#: doubles; an element with its tag and one node.
+_GMSH_MIN_BYTES = {False: (6, 4), True: (24, 8)}
+
+
+@dataclass(frozen=True)
+class HeaderCounts:
+    """Counts a file announces before its data, and whether they can be believed."""
+
+    nodes: int
+    cells: int
+    plausible: bool = True
+
+
+def _gmsh_counts(data: Any) -> HeaderCounts | None:
+    """Nodes and elements announced by a gmsh file (2.2 or 4.x, text or binary)."""
+    head = bytes(data[:256]).split(b"\n")
+    fields = head[1].split() if len(head) > 1 else []
+    if len(fields) < 3:
+        return None
+    four, binary = fields[0].startswith(b"4"), fields[1] == b"1"
+    size_t = "<Q" if fields[2] == b"8" else "<I"
+    counts = []
+    consistent = True
+    for name in (b"$Nodes", b"$Elements"):
+        pos = data.find(name + b"\n")
+        if pos < 0:
+            pos = data.find(name + b"\r\n")
+        if pos < 0:
+            counts.append(0)
+            continue
+        pos = data.find(b"\n", pos) + 1
+        if four and binary:
+            width = struct.calcsize(size_t)
+            raw = bytes(data[pos:pos + 4 * width])
+            if len(raw) < 4 * width:
+                return None
+            head4 = list(struct.unpack("<" + size_t[1] * 4, raw))
+        else:
+            line = bytes(data[pos:data.find(b"\n", pos)]).split()
+            if not line or not all(t.isdigit() for t in line[:4]):
+                return None
+            head4 = [int(t) for t in line[:4]]
+        if four and len(head4) == 4:
+            blocks, count, low, high = head4
+            # blocks, then count tags from low to high: none of these can disagree
+            consistent &= not (count and (blocks == 0 or low < 1 or high < low
+                                          or high - low + 1 < count))
+            counts.append(count)
+        else:  # gmsh 2.2 (the count alone), or 4.0 (blocks, count)
+            counts.append(head4[1] if four and len(head4) > 1 else head4[0])
+    node_bytes, cell_bytes = _GMSH_MIN_BYTES[binary]
+    plausible = consistent and counts[0] * node_bytes + counts[1] * cell_bytes <= len(data)
+    return HeaderCounts(counts[0], counts[1], plausible)
+
+
+def header_counts(path: str | os.PathLike[str]) -> HeaderCounts | None:
+    """Nodes and cells a file announces in its header, without reading its data.
+
+    gmsh 2.2 and 4.x, text or binary (the counts after ``$Nodes`` and
+    ``$Elements``), and VTU (its ``Piece`` element).  Other formats: None.
+    A gmsh file announcing more nodes and elements than its size can hold,
+    or (4.x) counts its entity blocks and tag range contradict, is marked
+    not plausible.
+    """
+    try:
+        with open(path, "rb") as fh:
+            if os.fstat(fh.fileno()).st_size == 0:
+                return None
+            with mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as data:
+                if data[:11] == b"$MeshFormat":
+                    return _gmsh_counts(data)
+                head = bytes(data[:HEADER_BYTES])
+    except (OSError, ValueError, struct.error):
+        return None
+    piece = _VTU_PIECE.search(head)
+    if piece and b"UnstructuredGrid" in head:
+        return HeaderCounts(int(piece.group(1)), int(piece.group(2)))
+    return None
+
+
+def check_file_fits(path: str | os.PathLike[str], available: int | None = None) -> None:
+    """Refuse, from its header alone, a file whose mesh will not fit (see :func:`header_counts`).
+
+    The header gives no cell types: cells of unknown type count 4 nodes and
+    a node degree of 6; when it gives no cell count, every node counts as in
+    one cell.  Both err low, so that nothing that fits is refused.
+
+    Raises
+    ------
+    MeshReadError
+        The header announces more than the file can hold (cut short, damaged).
+    InputError
+        The mesh will not fit in memory.
+    """
+    counts = header_counts(path)
+    if counts is None:
+        return
+    if not counts.plausible:
+        raise MeshReadError(f"{path}: the header's counts ({counts.nodes:,} nodes, "
+                            f"{counts.cells:,} elements) contradict its entity blocks or tag "
+                            f"range, or exceed what {Path(path).stat().st_size:,} bytes can "
+                            "hold: the file is cut short or damaged")
+    n, cells = counts.nodes, counts.cells
+    streamed = Path(path).suffix.lower() == ".vtu"  # read by the streaming reader
+    check_fits(estimate_bytes(n, {"unknown": cells or n}, streamed=streamed), available,
+               what=str(path))

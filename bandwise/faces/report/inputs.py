@@ -1,0 +1,94 @@
+"""What a report is made from: plain results of the analysis, gathered in one value."""
+
+from __future__ import annotations
+
+import datetime as dt
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+import numpy as np
+from numpy.typing import NDArray
+
+from bandwise.core.dofs import DofLayout
+from bandwise.core.graph import NodeGraph
+from bandwise.core.model import Model
+from bandwise.core.summary import MeshSummary
+
+if TYPE_CHECKING:  # the report reads these results; it does not need their modules
+    from bandwise.algorithms.checks.findings import Finding
+    from bandwise.algorithms.orderings.compare import Comparison
+    from bandwise.algorithms.rigid import ZeroEnergyAnalysis
+    from bandwise.algorithms.supports import SupportSet
+    from bandwise.core.equations import EquationNumbering
+
+
+def _now() -> dt.datetime:
+    return dt.datetime.now(dt.UTC).replace(microsecond=0)
+
+
+@dataclass(frozen=True)
+class ReportInputs:
+    """Results the report presents; each optional part gets a section only when given.
+
+    Attributes
+    ----------
+    model, graph, layout, summary
+        The mesh (None for a matrix file: no mesh picture), its node graph (or
+        the matrix pattern's graph), its DOFs (a layout, or 1 per matrix row)
+        and its sizing summary.
+    findings
+        Results of the mesh checks (:class:`~bandwise.algorithms.checks.findings.Finding`),
+        or None when the checks were not run.
+    perm, method
+        The chosen ordering ``perm[new] = old`` and its name, or None when the
+        mesh was not renumbered.
+    comparison
+        The orderings compared (:class:`~bandwise.algorithms.orderings.compare.Comparison`), or None;
+        its best candidate is the "renumbered" ordering unless ``perm`` is given.
+    supports
+        The applied supports (:class:`~bandwise.algorithms.supports.SupportSet`), or None.
+    modes
+        Zero-energy modes (:class:`~bandwise.algorithms.rigid.ZeroEnergyAnalysis`), or None.
+    equations
+        Equations with held DOFs set aside
+        (:class:`~bandwise.core.equations.EquationNumbering`), or None.
+    fail_on
+        Lowest finding severity that makes the verdict "problems found"
+        (the ``--fail-on`` gate of :mod:`bandwise.algorithms.checks.verdict`).
+    created
+        Time stamp written in the report (UTC).
+    """
+
+    model: Model | None
+    graph: NodeGraph
+    layout: DofLayout | int
+    summary: MeshSummary
+    findings: Sequence[Finding] | None = None
+    perm: NDArray[np.integer] | None = None
+    method: str | None = None
+    comparison: Comparison | None = None
+    supports: SupportSet | None = None
+    modes: ZeroEnergyAnalysis | None = None
+    equations: EquationNumbering | None = None
+    fail_on: str = "error"
+    created: dt.datetime = field(default_factory=_now)
+
+    @property
+    def subject(self) -> str:
+        """``"mesh"``, or ``"matrix"`` when the report is of a matrix pattern."""
+        return "matrix" if self.model is None else "mesh"
+
+    @property
+    def chosen_perm(self) -> NDArray[np.integer] | None:
+        """The ordering shown as "renumbered": ``perm``, else the comparison's best."""
+        if self.perm is not None or self.comparison is None:
+            return self.perm
+        return self.comparison.best.perm
+
+    @property
+    def chosen_method(self) -> str:
+        """Name of :attr:`chosen_perm`."""
+        if self.perm is not None or self.comparison is None:
+            return self.method or "given ordering"
+        return self.comparison.best.method
