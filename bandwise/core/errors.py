@@ -23,3 +23,12 @@ class MeshWriteError(BandwiseError):
 
 class InputError(BandwiseError):
     """An option or argument is out of range or inconsistent."""
+
+
+def one_line(exc: BaseException, limit: int = 160) -> str:
+    """An exception's message on one line (white space folded), cut to ``limit`` characters.
+
+    Empty when the exception carries no message: callers decide what to say then.
+    """
+    text = " ".join(str(exc).split())
+    return text if len(text) <= limit else text[: limit - 3] + "..."

@@ -44,7 +44,7 @@ import numpy as np
 import scipy.sparse as sp
 from numpy.typing import NDArray
 
-from bandwise.core.errors import InputError, MeshReadError
+from bandwise.core.errors import InputError, MeshReadError, one_line
 from bandwise.core.model import check_permutation
 
 from .atomic import atomic_folder
@@ -183,7 +183,7 @@ def _read_matrix_market(raw: bytes, path: Path) -> MatrixData:
     try:
         matrix = scipy.io.mmread(io.BytesIO(raw))
     except Exception as exc:  # noqa: BLE001 - scipy raises several types on malformed files
-        raise MeshReadError(f"{path}: malformed Matrix Market file: {_one_line(exc)}") from None
+        raise MeshReadError(f"{path}: malformed Matrix Market file: {one_line(exc) or type(exc).__name__}") from None
     if layout == "array":  # dense: every entry stored
         dense = np.atleast_2d(np.asarray(matrix))
         rows, cols = np.indices(dense.shape)
@@ -196,11 +196,6 @@ def _read_matrix_market(raw: bytes, path: Path) -> MatrixData:
                   for ln in raw.splitlines()[1:3] if ln.startswith(b"%") and ln.strip(b"%- \t\r")),
                  "")
     return MatrixData(matrix, symmetry, field, title, str(path))
-
-
-def _one_line(exc: BaseException) -> str:
-    text = " ".join(str(exc).split()) or type(exc).__name__
-    return text if len(text) <= 160 else text[:157] + "..."
 
 
 # --------------------------------------------------------------------------- Harwell-Boeing

@@ -32,7 +32,7 @@ from typing import Any
 import numpy as np
 
 from bandwise.core.elements import node_count
-from bandwise.core.errors import InputError, MeshReadError, MeshWriteError
+from bandwise.core.errors import InputError, MeshReadError, MeshWriteError, one_line
 from bandwise.core.model import CellBlock, Model
 
 from .atomic import atomic_folder
@@ -89,14 +89,13 @@ def detect_format(path: str | os.PathLike[str]) -> str:
 
 
 def _one_line(exc: BaseException) -> str:
-    text = " ".join(str(exc).split())
-    name = type(exc).__name__
-    if not text or isinstance(exc, SystemExit):
-        return f"the file is malformed ({name})" if not isinstance(exc, SystemExit) \
-            else "the file is malformed or not of this format"
-    if len(text) > 160:
-        text = text[:157] + "..."
-    return f"{text} ({name})" if name not in ("ReadError",) else text
+    """A reader's or writer's failure in one line, with the exception's name when it helps."""
+    text, name = one_line(exc), type(exc).__name__
+    if isinstance(exc, SystemExit):
+        return "the file is malformed or not of this format"
+    if not text:
+        return f"the file is malformed ({name})"
+    return f"{text} ({name})" if name != "ReadError" else text
 
 
 #: Most tags a gmsh data section header may announce (gmsh writes 1 to 4 of each kind).

@@ -43,7 +43,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bandwise.core.dofs import DofLayout
-from bandwise.core.errors import InputError
+from bandwise.core.errors import InputError, one_line
 from bandwise.core.graph import NodeGraph, graph_from_cells
 from bandwise.core.metrics import Metrics, metrics
 from bandwise.core.model import check_permutation
@@ -298,7 +298,8 @@ def _dof_arg(dofs: int | DofLayout) -> int | NDArray[np.int64]:
 
 
 def _one_line(exc: BaseException) -> str:
-    text = " ".join(str(exc).split())
+    """The exception's name and message on one line (an ordering's failure in its row)."""
+    text = one_line(exc, limit=10_000)
     return f"{type(exc).__name__}: {text}" if text else type(exc).__name__
 
 
