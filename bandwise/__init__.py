@@ -60,7 +60,33 @@ try:
 except PackageNotFoundError:  # pragma: no cover - running from a source tree
     __version__ = "0+unknown"
 
+from bandwise.algorithms.checks.verdict import Verdict  # noqa: E402
+from bandwise.workflows import (  # noqa: E402
+    CheckResult,
+    FileFailure,
+    MergeOutcome,
+    RenumberResult,
+    check_file,
+    check_files,
+    merge_file,
+    renumber_file,
+)
+
+
+def __getattr__(name: str):  # the report (matplotlib) is loaded when first asked for
+    if name == "write_report":
+        from bandwise.faces.report import write_results_report
+
+        return write_results_report
+    raise AttributeError(f"module 'bandwise' has no attribute {name!r}")
+
+# the workflows: one call per job, a frozen result back
 __all__ = [
+    "CheckResult", "FileFailure", "MergeOutcome", "RenumberResult", "Verdict",
+    "check_file", "check_files", "merge_file", "renumber_file", "write_report",
+]
+# the model, its graph and figures
+__all__ += [
     "BandwiseError", "CellBlock", "DofLayout", "InputError", "MeshReadError",
     "MeshSummary", "MeshWriteError", "Metrics", "Model", "NodeGraph",
     "dof_layout", "graph_from_matrix", "inverse_permutation", "metrics",

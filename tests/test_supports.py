@@ -269,5 +269,5 @@ def test_dof_map_takes_one_mesh(runner, cli_app, tmp_path) -> None:
     path = _write_plate(tmp_path)
     result = runner.invoke(cli_app, ["check", str(path), str(path), "--dof-map",
                                      str(tmp_path / "x.csv")])
-    assert result.exit_code == 2 and "--dof-map takes one mesh file" in result.stderr
+    assert result.exit_code == 2 and "(--dof-map) takes one mesh file" in result.stderr
     assert not (tmp_path / "x.csv").exists()

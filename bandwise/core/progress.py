@@ -12,7 +12,7 @@ import contextlib
 import sys
 import threading
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from typing import Protocol, TextIO
 
 
@@ -22,6 +22,31 @@ class Progress(Protocol):
     def started(self, label: str) -> None: ...
 
     def finished(self, label: str, seconds: float) -> None: ...
+
+
+#: A plain function told of each step: ``(label, None)`` at its start,
+#: ``(label, seconds)`` at its end.
+ProgressCallback = Callable[[str, "float | None"], None]
+
+
+class CallbackProgress:
+    """A :class:`Progress` that passes each step on to a plain function."""
+
+    def __init__(self, callback: ProgressCallback) -> None:
+        self.callback = callback
+
+    def started(self, label: str) -> None:
+        self.callback(label, None)
+
+    def finished(self, label: str, seconds: float) -> None:
+        self.callback(label, seconds)
+
+
+def as_progress(progress: Progress | ProgressCallback | None) -> Progress | None:
+    """A :class:`Progress` from what a caller gave: one already, a plain function, or None."""
+    if progress is None or hasattr(progress, "started"):
+        return progress  # type: ignore[return-value]
+    return CallbackProgress(progress)
 
 
 @contextlib.contextmanager

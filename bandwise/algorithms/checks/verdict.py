@@ -1,16 +1,16 @@
 """The gate over the findings: which ones fail a run, and how to show them.
 
 ``fail_on`` names the lowest severity that fails: ``error`` (default),
-``warning``, ``note``, or ``never``.  Rendering returns strings; printing
-is left to the command line.
+``warning``, ``note``, or ``never``.  :func:`decide_verdict` is the one place
+a verdict word is chosen; every face shows the value it returns.
 """
 
 from __future__ import annotations
 
-import textwrap
+from collections.abc import Sequence
+from dataclasses import dataclass
 
 from bandwise.core.errors import InputError
-from bandwise.core.tables import render_table
 
 from .findings import SEVERITIES, Finding, severity_rank
 
@@ -25,7 +25,7 @@ def check_fail_on(fail_on: str) -> str:
     return fail_on
 
 
-def failing(findings: list[Finding], fail_on: str) -> list[Finding]:
+def failing(findings: Sequence[Finding], fail_on: str) -> list[Finding]:
     """The findings at or above the ``fail_on`` severity."""
     if check_fail_on(fail_on) == "never":
         return []
@@ -33,45 +33,66 @@ def failing(findings: list[Finding], fail_on: str) -> list[Finding]:
     return [f for f in findings if severity_rank(f.severity) <= limit]
 
 
-def verdict(findings: list[Finding], fail_on: str) -> str:
-    """``"problems"`` when some finding fails the gate, else ``"clear"``."""
-    return "problems" if failing(findings, fail_on) else "clear"
+#: The verdict words, one per state a job can be in before a run.
+READY = "ready"              # nothing at or above the gate; the supports leave no free mode
+UNSUPPORTED = "unsupported"  # nothing at or above the gate, but no supports: modes are free
+PROBLEMS = "problems"        # some finding at or above the gate
+UNCHECKED = "unchecked"      # nothing could be checked beyond the sizing (a bare pattern)
+VERDICTS: tuple[str, ...] = (READY, UNSUPPORTED, PROBLEMS, UNCHECKED)
 
 
-def summary_line(source: str, findings: list[Finding], fail_on: str) -> str:
-    """One line per mesh: file, verdict and the number of findings of each severity."""
-    counts = {s: sum(1 for f in findings if f.severity == s) for s in SEVERITIES}
-    tally = ", ".join(f"{n} {s}{'' if n == 1 else 's'}" for s, n in counts.items())
-    return f"{source}: {verdict(findings, fail_on)} ({tally}; gate: {fail_on})"
+@dataclass(frozen=True)
+class Verdict:
+    """One word of :data:`VERDICTS` for a whole file, and the reason in a sentence.
+
+    Every face shows this value as it is: the text output, the JSON and the
+    HTML report never decide a verdict of their own.
+    """
+
+    word: str
+    reason: str
+
+    def __str__(self) -> str:
+        return f"{self.word} ({self.reason})"
 
 
-def findings_text(findings: list[Finding], width: int = 72) -> str:
-    """The findings as a table (severity, code, count) each followed by its message."""
-    if not findings:
-        return "Mesh checks: nothing found."
-    lines = ["Mesh checks"]
-    rows = []
-    for f in findings:
-        rows.append((f.severity, f.code, f"{f.count:,}", _first_ids(f)))
-    lines.append(render_table(rows, header=("severity", "finding", "count", "first items"),
-                              align="llrl"))
-    lines.append("")
-    for f in findings:
-        lines.append(f"{f.code}:")
-        lines.extend(textwrap.wrap(f.message, width, initial_indent="  ",
-                                   subsequent_indent="  "))
-        if f.where:
-            lines.extend(textwrap.wrap("in: " + "; ".join(f.where), width,
-                                       initial_indent="  ", subsequent_indent="    "))
-    return "\n".join(lines)
+def decide_verdict(findings: Sequence[Finding] | None, fail_on: str, *,
+                   supports_given: bool = False, free_modes: int = 0) -> Verdict:
+    """The verdict of one file, from its findings and its zero-energy modes.
 
+    Parameters
+    ----------
+    findings
+        What the checks found, or None when nothing could be checked.
+    fail_on
+        The gate (:data:`FAIL_ON`): findings at or above it make ``problems``.
+    supports_given
+        Whether any DOF was held (options, a support file or the deck's cards).
+    free_modes
+        Rigid-body and mechanism modes the zero-energy analysis leaves free.
 
-def _first_ids(f: Finding, k: int = 5) -> str:
-    if f.node_ids:
-        ids, kind = f.node_ids, "nodes"
-    elif f.element_ids:
-        ids, kind = f.element_ids, "elements"
-    else:
-        return ""
-    more = ", ..." if len(ids) > k else ""
-    return f"{kind} {', '.join(str(i) for i in ids[:k])}{more}"
+    Notes
+    -----
+    With no supports the static stiffness is singular by construction (a free
+    body has rigid-body modes); such a mesh is ``unsupported``, not ``ready``,
+    even when every check passes.  A free-free modal run needs exactly that,
+    so it is not a failure of the gate.  With supports given, free modes are
+    an error finding (``supports.free_modes``) and the verdict is ``problems``.
+    """
+    if findings is None:
+        return Verdict(UNCHECKED, "a matrix pattern without values has nothing to check "
+                                  "beyond its size")
+    gate = failing(list(findings), fail_on)
+    if gate:
+        codes = ", ".join(dict.fromkeys(f.code for f in gate))
+        return Verdict(PROBLEMS, f"{len(gate)} finding{'s' * (len(gate) != 1)} at or above "
+                                 f"{fail_on}: {codes}")
+    rest = len(findings)
+    tail = f"; {rest} finding{'s' * (rest != 1)} below the gate to review" if rest else ""
+    if free_modes and not supports_given:
+        return Verdict(UNSUPPORTED, f"no supports given: {free_modes} zero-energy mode"
+                                    f"{'s' * (free_modes != 1)} free, so a static solve would "
+                                    f"be singular (a free-free modal run is fine){tail}")
+    return Verdict(READY, f"nothing at or above {fail_on}"
+                          + ("; the supports leave no zero-energy mode" if supports_given
+                             else "") + tail)

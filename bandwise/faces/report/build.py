@@ -19,7 +19,6 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from bandwise.core.dofs import DofLayout
 from bandwise.core.errors import MeshWriteError
 from bandwise.core.metrics import column_heights, wavefront_profile
 from bandwise.core.model import Model
@@ -30,7 +29,6 @@ from .document import body_mode_count, report_document
 from .html import json_text, render_html
 from .inputs import ReportInputs
 from .meshview import MeshView, mesh_view, spread
-from .modeshape import free_motion
 from .sampling import pattern_image
 
 HTML_NAME, JSON_NAME = "report.html", "report.json"
@@ -128,12 +126,10 @@ def mode_marks(inputs: ReportInputs) -> dict[str, NDArray[np.int64]]:
 
 
 def mode_arrows(inputs: ReportInputs) -> tuple[NDArray[np.int64], NDArray[np.float64]] | None:
-    """One free motion as arrows, when the given supports leave modes and the model is small."""
-    free = body_mode_count(inputs)
-    if not free or inputs.model is None or inputs.supports is None \
-            or not isinstance(inputs.layout, DofLayout):
+    """The free motion the analysis computed, drawn as arrows when the supports leave modes."""
+    if not body_mode_count(inputs) or inputs.model is None:
         return None
-    return free_motion(inputs.model, inputs.layout, inputs.supports, free)
+    return inputs.motion
 
 
 def visible_arrows(view: MeshView, arrows: tuple[NDArray[np.int64], NDArray[np.float64]] | None,

@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from bandwise import __version__
-from bandwise.algorithms.checks.verdict import failing
+from bandwise.algorithms.checks.verdict import Verdict, decide_verdict
 from bandwise.core.caution import CAUTION
 from bandwise.core.metrics import INDEX_BYTES, VALUE_BYTES, Metrics, metrics
 
@@ -23,9 +23,6 @@ from .inputs import ReportInputs
 if TYPE_CHECKING:
     from bandwise.algorithms.orderings.compare import Comparison
     from bandwise.algorithms.rigid import ZeroEnergyAnalysis
-
-#: The verdict words.
-READY, PROBLEMS, UNCHECKED = "ready", "problems found", "not checked"
 
 def plain(value: Any) -> Any:
     """Turn numpy scalars, arrays, tuples and dataclass dicts into JSON-ready values."""
@@ -50,36 +47,18 @@ def _as_dict(obj: Any) -> Any:
     return plain(obj.to_dict()) if hasattr(obj, "to_dict") else plain(obj)
 
 
-def verdict(inputs: ReportInputs) -> dict[str, str]:
-    """One-line verdict: ``ready``, ``problems found`` or ``not checked``, and why.
+def verdict(inputs: ReportInputs) -> Verdict:
+    """The verdict the analysis decided; for inputs built by hand, decided the same way.
 
-    The gate is that of ``bandwise check`` (:func:`bandwise.algorithms.checks.verdict.failing`
-    with ``inputs.fail_on``).  Rigid-body or mechanism modes left free by
-    given supports make the stiffness matrix singular: they fail the verdict
-    too, whether or not the findings already carry them (``supports.free_modes``).
+    Never a second opinion: both paths go through
+    :func:`bandwise.algorithms.checks.verdict.decide_verdict`.
     """
-    reasons = []
-    if inputs.findings is not None:
-        gate = failing(list(inputs.findings), inputs.fail_on)
-        if gate:
-            codes = ", ".join(dict.fromkeys(f.code for f in gate))
-            reasons.append(f"{len(gate)} finding{'s' * (len(gate) != 1)} at or above "
-                           f"{inputs.fail_on}: {codes}")
-    free = body_mode_count(inputs)
-    carried = any(f.code == "supports.free_modes" for f in inputs.findings or ())
-    if free and not carried:
-        reasons.append(f"{free} zero-energy mode{'s' * (free != 1)} left by the supports: "
-                       "the stiffness matrix is singular")
-    if reasons:
-        return {"status": PROBLEMS, "reason": "; ".join(reasons)}
-    if inputs.findings is None:
-        why = ("a matrix has no mesh to check" if inputs.model is None
-               else "the mesh checks were not run (bandwise check --report runs them)")
-        return {"status": UNCHECKED, "reason": why}
-    rest = len(inputs.findings)
-    tail = f" ({rest} finding{'s' * (rest != 1)} below the gate to review)" if rest else ""
-    return {"status": READY, "reason": f"nothing at or above {inputs.fail_on} found by the "
-                                       f"checks{tail}"}
+    if inputs.verdict is not None:
+        return inputs.verdict
+    return decide_verdict(None if inputs.findings is None else list(inputs.findings),
+                          inputs.fail_on, supports_given=supports_given(inputs),
+                          free_modes=0 if inputs.modes is None else
+                          int(inputs.modes.n_body_modes))
 
 
 def body_mode_count(inputs: ReportInputs) -> int:
@@ -133,11 +112,13 @@ def renumbering(inputs: ReportInputs) -> dict[str, Any] | None:
     if perm is None:
         return None
     s = inputs.summary
-    return {
-        "method": inputs.chosen_method,
-        "nodes": _level_pair(s.node_level, metrics(inputs.graph, perm)),
-        "dofs": _level_pair(s.dof_level, metrics(inputs.graph, perm, inputs.layout)),
-    }
+    best = None if inputs.comparison is None else inputs.comparison.best
+    if best is not None and perm is best.perm and best.nodes is not None:
+        nodes, dofs = best.nodes, best.dofs   # measured when the orderings were compared
+    else:  # an ordering given by hand, never measured
+        nodes, dofs = metrics(inputs.graph, perm), metrics(inputs.graph, perm, inputs.layout)
+    return {"method": inputs.chosen_method, "nodes": _level_pair(s.node_level, nodes),
+            "dofs": _level_pair(s.dof_level, dofs)}
 
 
 def cholesky_bytes(nnz: int, n_rows: int) -> int:
@@ -202,7 +183,9 @@ def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None =
         "file_name": Path(s.source).name if s.source else "",
         "subject": inputs.subject,
         "caution": CAUTION,
-        "verdict": verdict(inputs),
+        "verdict": verdict(inputs).word,
+        "verdict_reason": verdict(inputs).reason,
+        "outputs": [{"what": what, "file": str(path)} for what, path in inputs.outputs],
         "mesh": plain(s.to_dict()),
         "findings": (None if inputs.findings is None
                      else [_as_dict(f) for f in inputs.findings]),

@@ -15,9 +15,8 @@ import json
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
+from bandwise.algorithms.checks.verdict import PROBLEMS, READY
 from bandwise.core.tables import human_bytes, human_count
-
-from .document import PROBLEMS, READY
 
 #: Labels and units of the ordering figures (a Metrics field -> label, unit).
 FIGURE_LABELS: dict[str, tuple[str, str]] = {
@@ -196,9 +195,9 @@ def figure(png: bytes, caption: str, alt: str) -> str:
 def header_section(doc: Mapping[str, Any]) -> str:
     """Title, what was analysed, size, verdict and the caution."""
     mesh = doc["mesh"]
-    v = doc["verdict"]
-    css = {READY: "ready", PROBLEMS: "problems"}.get(v["status"], "unchecked")
-    symbol = {READY: "&#10004;", PROBLEMS: "&#10006;"}.get(v["status"], "?")
+    word, reason = doc["verdict"], doc["verdict_reason"]
+    css = {READY: "ready", PROBLEMS: "problems"}.get(word, "unchecked")
+    symbol = {READY: "&#10004;", PROBLEMS: "&#10006;"}.get(word, "?")
     facts = [
         ["file", mesh.get("file", "")], ["format", mesh.get("format", "")],
         ["report created (UTC)", doc["created"]],
@@ -215,8 +214,8 @@ def header_section(doc: Mapping[str, Any]) -> str:
         ('<p class="sub">Pre-run check, sizing and numbering of a finite-element '
          f"{esc(doc['subject'])} for a direct solver.</p>"),
         table(facts, keys=["", "nodes"]),
-        (f'<div class="verdict {css}">{symbol} Verdict: {esc(v["status"])} '
-        f'&mdash; {esc(v["reason"])}</div>'),
+        (f'<div class="verdict {css}">{symbol} Verdict: {esc(word)} '
+        f'&mdash; {esc(reason)}</div>'),
         f'<p class="caution">{esc(doc["caution"])}</p>',
         "</header>",
     ])

@@ -17,10 +17,12 @@ from bandwise.core.summary import MeshSummary
 
 if TYPE_CHECKING:  # the report reads these results; it does not need their modules
     from bandwise.algorithms.checks.findings import Finding
+    from bandwise.algorithms.checks.verdict import Verdict
     from bandwise.algorithms.orderings.compare import Comparison
     from bandwise.algorithms.rigid import ZeroEnergyAnalysis
     from bandwise.algorithms.supports import SupportSet
     from bandwise.core.equations import EquationNumbering
+    from bandwise.workflows import CheckResult, RenumberResult
 
 
 def _now() -> dt.datetime:
@@ -58,6 +60,13 @@ class ReportInputs:
         (the ``--fail-on`` gate of :mod:`bandwise.algorithms.checks.verdict`).
     created
         Time stamp written in the report (UTC).
+    verdict
+        The verdict the analysis decided (None: decided from the findings here,
+        by the same function).
+    motion
+        One free zero-energy motion ``(nodes, translations)`` to draw as arrows.
+    outputs
+        Files the run wrote, as ``(what, path)``: the renumbered mesh, the maps.
     """
 
     model: Model | None
@@ -73,6 +82,9 @@ class ReportInputs:
     equations: EquationNumbering | None = None
     fail_on: str = "error"
     created: dt.datetime = field(default_factory=_now)
+    verdict: Verdict | None = None
+    motion: tuple[NDArray[np.int64], NDArray[np.float64]] | None = None
+    outputs: tuple[tuple[str, str], ...] = ()
 
     @property
     def subject(self) -> str:
@@ -92,3 +104,40 @@ class ReportInputs:
         if self.perm is not None or self.comparison is None:
             return self.method or "given ordering"
         return self.comparison.best.method
+
+
+def report_inputs(result: CheckResult | RenumberResult) -> ReportInputs:
+    """What the report shows of a ``check_file`` or ``renumber_file`` result: nothing new computed.
+
+    A renumbering's report shows the checks the run made on the same mesh
+    (``renumber_file(..., analyse=True)``), the orderings compared, the
+    equations in the kept order and the files written.
+    """
+    from bandwise.workflows import RenumberResult
+
+    if isinstance(result, RenumberResult):
+        check = result.check
+        outputs = [("renumbered mesh" if result.model is not None else "renumbered matrix",
+                    result.output), ("node map (old to new)", result.node_map)]
+        if result.dof_map is not None:
+            outputs.append(("DOF map (equation of every DOF)", result.dof_map))
+        equations = None if result.equations is None else result.equations.after
+        held = None if result.equations is None else result.equations.supports
+        if check is None:
+            raise ValueError(f"{result.input}: a report of a renumbering needs "
+                             "renumber_file(..., analyse=True)")
+        return ReportInputs(
+            model=check.model, graph=check.graph, layout=check.layout, summary=check.summary,
+            findings=check.findings, comparison=result.comparison, supports=held,
+            modes=None if check.supports is None else check.supports.analysis,
+            equations=equations, fail_on=check.fail_on, verdict=check.verdict,
+            motion=check.motion, outputs=tuple(outputs))
+    sup = result.supports
+    equations = result.kept_equations or (None if sup is None else sup.equations)
+    return ReportInputs(
+        model=result.model, graph=result.graph, layout=result.layout, summary=result.summary,
+        findings=result.findings, comparison=result.comparison,
+        supports=None if sup is None else sup.supports,
+        modes=None if sup is None else sup.analysis, equations=equations,
+        fail_on=result.fail_on, verdict=result.verdict, motion=result.motion)
+
