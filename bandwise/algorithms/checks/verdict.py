@@ -92,7 +92,7 @@ def decide_verdict(findings: Sequence[Finding] | None, fail_on: str, *,
     if free_modes and not supports_given:
         return Verdict(UNSUPPORTED, f"no supports given: {free_modes} zero-energy mode"
                                     f"{'s' * (free_modes != 1)} free, so a static solve would "
-                                    f"be singular (a free-free modal run is fine){tail}")
+                                    f"be singular; a free-free modal run is fine{tail}")
     return Verdict(READY, f"nothing at or above {fail_on}"
                           + ("; the supports leave no zero-energy mode" if supports_given
                              else "") + tail)
