@@ -40,6 +40,7 @@ from bandwise.core.background import in_background
 from bandwise.core.elements import CORNER_COUNT, cell_dimension
 from bandwise.core.errors import InputError
 from bandwise.core.model import Model
+from bandwise.core.unionfind import compact_labels, union
 
 #: Local corner tuples of each facet, outward orientation, per corner shape.
 _FACETS: dict[str, tuple[tuple[int, ...], ...]] = {
@@ -330,7 +331,7 @@ def facet_table(model: Model, coupling: list[NDArray[np.bool_]] | None = None) -
     coupled = np.zeros(n_cells, dtype=np.bool_)
     for (bi, rows, _) in entries:
         coupled[offsets[bi] + rows] = True
-    labels, n_blocks = _compact_roots(parent, coupled)
+    labels, n_blocks = compact_labels(parent, coupled)
     return FacetTable(model, np.array([e[0] for e in entries], dtype=np.int64),
                       tuple(e[1] for e in entries), tuple(e[2] for e in entries), starts,
                       np.sort(free), mult, labels, int(n_blocks))
@@ -541,21 +542,9 @@ def _bucket_runs(bucket_start, rows, idx, starts, enf, ecells, erow0, ebase,
             if i == run_start:
                 first = cell
             else:
-                _union(parent, first, cell)
+                union(parent, first, cell)
             mult[g] += 1
     return mult[:g + 1].astype(np.int64), free[:n_free].astype(np.int64)
-
-
-@numba.njit(cache=True, nogil=True)
-def _find(parent, x):  # pragma: no cover - compiled
-    root = x
-    while parent[root] != root:
-        root = parent[root]
-    while parent[x] != root:
-        nxt = parent[x]
-        parent[x] = root
-        x = nxt
-    return root
 
 
 @numba.njit(cache=True, nogil=True, inline="always")
@@ -565,34 +554,6 @@ def _mix(h, v):  # pragma: no cover - compiled
     h ^= (h >> 31) & 0x1FFFFFFFF
     h *= 0x14D049BB133111EB
     return h ^ ((h >> 29) & 0x7FFFFFFFF)
-
-
-@numba.njit(cache=True, nogil=True)
-def _union(parent, a, b):  # pragma: no cover - compiled
-    ra = _find(parent, a)
-    rb = _find(parent, b)
-    if ra < rb:
-        parent[rb] = ra
-    elif rb < ra:
-        parent[ra] = rb
-
-
-@numba.njit(cache=True, nogil=True)
-def _compact_roots(parent, coupled):  # pragma: no cover - compiled
-    """Number the union-find trees 0, 1, ... in order of first cell; -1 if not coupled."""
-    n = parent.size
-    label_of_root = np.full(n, -1, dtype=np.int64)
-    labels = np.full(n, -1, dtype=np.int64)
-    count = 0
-    for c in range(n):
-        if not coupled[c]:
-            continue
-        r = _find(parent, c)
-        if label_of_root[r] == -1:
-            label_of_root[r] = count
-            count += 1
-        labels[c] = label_of_root[r]
-    return labels, count
 
 
 def group_node_sets(nodes: NDArray[np.int64]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:

@@ -5,7 +5,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-import numba
 import numpy as np
 from numpy.typing import NDArray
 
@@ -20,6 +19,7 @@ from bandwise.core.elements import cell_dimension
 from bandwise.core.errors import InputError
 from bandwise.core.graph import NodeGraph
 from bandwise.core.model import Model
+from bandwise.core.unionfind import roots, union_rows
 
 from .findings import ELEMENT_ID_KIND
 
@@ -150,17 +150,17 @@ class CheckContext:
         parent = np.arange(n, dtype=np.int64)
         for b, use in zip(self.model.cells, self.coupling):
             if use.any():
-                _union_cells(np.ascontiguousarray(b.data, dtype=np.int64),
-                             np.flatnonzero(use).astype(np.int64), parent)
+                union_rows(np.ascontiguousarray(b.data, dtype=np.int64),
+                           np.flatnonzero(use).astype(np.int64), parent)
         for group in self.options.links:
-            _union_cells(np.ascontiguousarray(group, dtype=np.int64),
-                         np.arange(len(group), dtype=np.int64), parent)
+            union_rows(np.ascontiguousarray(group, dtype=np.int64),
+                       np.arange(len(group), dtype=np.int64), parent)
         coupled = self.references > 0
         part = np.full(n, -1, dtype=np.int64)
         if not coupled.any():
             return 0, part
-        roots = _roots(parent)
-        ids, compact = np.unique(roots[coupled], return_inverse=True)
+        root = roots(parent)
+        ids, compact = np.unique(root[coupled], return_inverse=True)
         sizes = np.bincount(compact)
         rank = np.empty(len(ids), dtype=np.int64)
         rank[np.argsort(-sizes, kind="stable")] = np.arange(len(ids))
@@ -173,36 +173,3 @@ class CheckContext:
         opt = self.options
         return resolve_tolerance(self.graph, self.model.points, opt.tolerance,
                                  opt.relative_tolerance)
-
-
-@numba.njit(cache=True, nogil=True)
-def _union_cells(data, rows, parent):  # pragma: no cover - compiled
-    """Join the nodes of every listed cell in a union-find forest."""
-    for ri in range(rows.size):
-        e = rows[ri]
-        a = data[e, 0]
-        while parent[a] != a:
-            parent[a] = parent[parent[a]]
-            a = parent[a]
-        for k in range(1, data.shape[1]):
-            b = data[e, k]
-            while parent[b] != b:
-                parent[b] = parent[parent[b]]
-                b = parent[b]
-            if a != b:
-                if a < b:
-                    parent[b] = a
-                else:
-                    parent[a] = b
-                    a = b
-
-
-@numba.njit(cache=True, nogil=True)
-def _roots(parent):  # pragma: no cover - compiled
-    out = np.empty(parent.size, dtype=np.int64)
-    for v in range(parent.size):
-        r = v
-        while parent[r] != r:
-            r = parent[r]
-        out[v] = r
-    return out
