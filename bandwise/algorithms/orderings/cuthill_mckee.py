@@ -32,7 +32,8 @@ from numpy.typing import NDArray
 from bandwise.core.graph import NodeGraph
 
 from . import register
-from ._levels import NO_CAP, _george_liu, _nodes_by_degree, _shrunk_last_level, _sweep
+from ._levels import NO_CAP, _george_liu, _shrunk_last_level, _sweep
+from ._parts import each_part, part_kernel
 
 __all__ = ["cuthill_mckee", "reverse_cuthill_mckee"]
 
@@ -89,33 +90,17 @@ def _cuthill_mckee_part(indptr, indices, deg, low, seen, stamp, order, start,
     return size, stamp
 
 
-@numba.njit(cache=True, nogil=True)
-def _cuthill_mckee_parts(indptr, indices, reverse):  # pragma: no cover - compiled
-    """(Reverse) Cuthill-McKee of every part, parts in order of their lowest degree."""
-    n = indptr.size - 1
-    deg = np.empty(n, dtype=np.int64)
-    for v in range(n):
-        deg[v] = indptr[v + 1] - indptr[v]
-    seen = np.zeros(n, dtype=np.int64)
-    order = np.empty(n, dtype=np.int64)
-    level_ptr = np.empty(n + 1, dtype=np.int64)
-    cand = np.empty(n, dtype=np.int64)
-    placed = 0
-    stamp = 0
-    for v in _nodes_by_degree(deg):
-        if seen[v] != 0:
-            continue
-        if deg[v] == 0:  # an isolated node is a part of its own
-            seen[v] = 1
-            order[placed] = v
-            placed += 1
-            continue
-        size, stamp = _cuthill_mckee_part(indptr, indices, deg, v, seen, stamp, order, placed,
-                                          level_ptr, cand)
-        if reverse:
-            order[placed:placed + size] = order[placed:placed + size][::-1].copy()
-        placed += size
-    return order
+def _cm_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
+             params):  # pragma: no cover - compiled
+    """Part kernel: Cuthill-McKee of the part of ``low``, reversed when ``params[0]``."""
+    size, stamp = _cuthill_mckee_part(indptr, indices, deg, low, seen, stamp, order, start,
+                                      iwork[0], iwork[1])
+    if params[0] != 0.0:
+        order[start:start + size] = order[start:start + size][::-1].copy()
+    return size, stamp
+
+
+_cm_kernel = part_kernel(_cm_part)
 
 
 @register("cm", "Cuthill-McKee (1969) from a George-Liu pseudo-peripheral node", "bandwidth")
@@ -153,7 +138,7 @@ def cuthill_mckee(graph: NodeGraph) -> NDArray[np.int64]:
     >>> cuthill_mckee(g).tolist()
     [0, 2, 1, 3]
     """
-    return _cuthill_mckee_parts(graph.indptr, graph.indices, False)
+    return each_part(graph, _cm_kernel, int_rows=2, params=(0.0,))[0]
 
 
 @register("rcm", "reverse Cuthill-McKee (George 1971) from a George-Liu pseudo-peripheral node",
@@ -183,4 +168,4 @@ def reverse_cuthill_mckee(graph: NodeGraph) -> NDArray[np.int64]:
     >>> reverse_cuthill_mckee(g).tolist()
     [3, 1, 2, 0]
     """
-    return _cuthill_mckee_parts(graph.indptr, graph.indices, True)
+    return each_part(graph, _cm_kernel, int_rows=2, params=(1.0,))[0]
