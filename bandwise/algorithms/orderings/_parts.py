@@ -17,7 +17,8 @@ components, one kernel per component):
 
 Kernels are compiled functions of one fixed signature (:data:`PART_KERNEL`),
 so the driver is compiled once and called with any of them through a
-function pointer; each kernel gets two scratch arrays (integer and float
+function pointer (degrees and marks are int32, half the memory traffic of
+int64 in the breadth-first searches, which are bound by it); each kernel gets two scratch arrays (integer and float
 rows of ``n + 1`` entries, as many rows as it asks for) and a vector of
 float parameters.  Python-level kernels (the Fiedler vector, METIS) go
 through :func:`ordered_by_parts`, which lets the same driver split the graph
@@ -59,7 +60,7 @@ _fvec = types.Array(types.float64, 1, "C")
 
 #: Signature of a part kernel: ``kernel(indptr, indices, deg, low, seen, stamp, order,
 #: start, iwork, fwork, params) -> (size, stamp)``.
-PART_KERNEL = types.UniTuple(_i64, 2)(_vec, _idx, _vec, _i64, _vec, _i64, _vec, _i64, _mat,
+PART_KERNEL = types.UniTuple(_i64, 2)(_vec, _idx, _idx, _i64, _idx, _i64, _vec, _i64, _mat,
                                       _fmat, _fvec)
 
 PartKernel = Any  # a numba dispatcher compiled for PART_KERNEL
@@ -76,10 +77,10 @@ def part_kernel(func: Callable[..., tuple[int, int]]) -> PartKernel:
 def _each_part(indptr, indices, kernel, iwork, fwork, params):  # pragma: no cover - compiled
     """The loop over parts: ``(order, part_ptr)``, part ``p`` at ``order[part_ptr[p]:part_ptr[p+1]]``."""
     n = indptr.size - 1
-    deg = np.empty(n, dtype=np.int64)
+    deg = np.empty(n, dtype=np.int32)
     for v in range(n):
         deg[v] = indptr[v + 1] - indptr[v]
-    seen = np.zeros(n, dtype=np.int64)
+    seen = np.zeros(n, dtype=np.int32)
     order = np.empty(n, dtype=np.int64)
     part_ptr = np.empty(n + 1, dtype=np.int64)
     placed = 0
@@ -111,6 +112,7 @@ def _indices32(graph: NodeGraph) -> NDArray[np.int32]:
 
 def each_part(graph: NodeGraph, kernel: PartKernel, int_rows: int = 0, float_rows: int = 0,
               params: tuple[float, ...] | NDArray[np.float64] = (),
+              iwork: NDArray[np.int64] | None = None,
               fwork: NDArray[np.float64] | None = None
               ) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
     """Number every connected part of ``graph`` with a part kernel.
@@ -125,9 +127,9 @@ def each_part(graph: NodeGraph, kernel: PartKernel, int_rows: int = 0, float_row
         Rows of ``n + 1`` scratch entries the kernel needs (int64, float64).
     params
         Float parameters handed to the kernel unchanged.
-    fwork
-        The float scratch rows, when the caller fills some of them in
-        (``float_rows`` is then ignored).
+    iwork, fwork
+        The scratch rows themselves, when the caller fills some of them in
+        (``int_rows`` or ``float_rows`` is then ignored).
 
     Returns
     -------
@@ -140,7 +142,8 @@ def each_part(graph: NodeGraph, kernel: PartKernel, int_rows: int = 0, float_row
     Cost: a counting sort of the degrees, then the kernel's own work per part.
     """
     n = graph.n
-    iwork = np.empty((int_rows, n + 1), dtype=np.int64)
+    if iwork is None:
+        iwork = np.empty((int_rows, n + 1), dtype=np.int64)
     if fwork is None:
         fwork = np.empty((float_rows, n + 1), dtype=np.float64)
     return _each_part(np.ascontiguousarray(graph.indptr, dtype=np.int64), _indices32(graph),

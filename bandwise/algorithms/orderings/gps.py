@@ -34,7 +34,7 @@ from numpy.typing import NDArray
 from bandwise.core.graph import NodeGraph
 
 from . import register
-from ._levels import _pseudo_diameter
+from ._levels import _profiles_both_ways, _pseudo_diameter
 from ._parts import each_part, part_kernel
 
 __all__ = ["gps"]
@@ -230,30 +230,6 @@ def _gps_part(indptr, indices, deg, low, seen, stamp, order, start, trees, tree_
         _number_by_levels(indptr, indices, deg, e, False, depth, comb, lptr, members,
                           order, start)
     return size, stamp
-
-
-@numba.njit(cache=True, nogil=True)
-def _profiles_both_ways(indptr, indices, order, start, size, pos):  # pragma: no cover
-    """Profile of ``order[start:start+size]`` as numbered and reversed, in one pass.
-
-    Row ``v`` at position ``p`` has ``p - min(p, positions of its neighbours)``
-    forward, and ``max(p, positions of its neighbours) - p`` reversed.
-    """
-    for a in range(start, start + size):
-        pos[order[a]] = a
-    forward = 0
-    backward = 0
-    for a in range(start, start + size):
-        v = order[a]
-        lo = a
-        hi = a
-        for t in range(indptr[v], indptr[v + 1]):
-            q = pos[indices[t]]
-            lo = min(lo, q)
-            hi = max(hi, q)
-        forward += a - lo
-        backward += hi - a
-    return forward, backward
 
 
 def _gps_kernel_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
