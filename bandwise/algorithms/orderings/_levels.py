@@ -67,7 +67,9 @@ def _sweep(indptr, indices, deg, root, seen, stamp, order, start, level_ptr,
     Nodes go to ``order[start:start+size]`` level after level; level ``l``
     is ``order[level_ptr[l]:level_ptr[l+1]]`` (absolute positions).  With
     ``by_degree`` the unvisited neighbours of each node are queued in
-    increasing degree, which makes the sweep a Cuthill-McKee numbering.
+    increasing degree, which makes the sweep a Cuthill-McKee numbering;
+    neighbours of equal degree keep their index order, or the reverse of it
+    when ``by_degree == 2``.
 
     Returns ``(size, depth, width, band)``; ``depth = -1`` when a level
     reached ``max_width`` nodes and the search was abandoned
@@ -96,8 +98,10 @@ def _sweep(indptr, indices, deg, root, seen, stamp, order, start, level_ptr,
         v = order[head]
         head += 1
         batch = tail
-        for t in range(indptr[v], indptr[v + 1]):
-            u = indices[t]
+        lo = indptr[v]
+        count = indptr[v + 1] - lo
+        for k in range(count):
+            u = indices[lo + count - 1 - k] if by_degree == 2 else indices[lo + k]
             if seen[u] != stamp:
                 seen[u] = stamp
                 order[tail] = u
@@ -180,6 +184,30 @@ def _shrunk_last_level(order, level_ptr, depth, deg, cand):  # pragma: no cover 
             k += 1
             previous = deg[v]
     return k
+
+
+@numba.njit(cache=True, nogil=True)
+def _profiles_both_ways(indptr, indices, order, start, size, pos):  # pragma: no cover
+    """Profile of ``order[start:start+size]`` as numbered and reversed, in one pass.
+
+    Row ``v`` at position ``p`` has ``p - min(p, positions of its neighbours)``
+    forward, and ``max(p, positions of its neighbours) - p`` reversed.
+    """
+    for a in range(start, start + size):
+        pos[order[a]] = a
+    forward = 0
+    backward = 0
+    for a in range(start, start + size):
+        v = order[a]
+        lo = a
+        hi = a
+        for t in range(indptr[v], indptr[v + 1]):
+            q = pos[indices[t]]
+            lo = min(lo, q)
+            hi = max(hi, q)
+        forward += a - lo
+        backward += hi - a
+    return forward, backward
 
 
 @numba.njit(cache=True, nogil=True)

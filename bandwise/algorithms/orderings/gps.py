@@ -34,7 +34,8 @@ from numpy.typing import NDArray
 from bandwise.core.graph import NodeGraph
 
 from . import register
-from ._levels import _nodes_by_degree, _pseudo_diameter
+from ._levels import _profiles_both_ways, _pseudo_diameter
+from ._parts import each_part, part_kernel
 
 __all__ = ["gps"]
 
@@ -231,62 +232,18 @@ def _gps_part(indptr, indices, deg, low, seen, stamp, order, start, trees, tree_
     return size, stamp
 
 
-@numba.njit(cache=True, nogil=True)
-def _profiles_both_ways(indptr, indices, order, start, size, pos):  # pragma: no cover
-    """Profile of ``order[start:start+size]`` as numbered and reversed, in one pass.
-
-    Row ``v`` at position ``p`` has ``p - min(p, positions of its neighbours)``
-    forward, and ``max(p, positions of its neighbours) - p`` reversed.
-    """
-    for a in range(start, start + size):
-        pos[order[a]] = a
-    forward = 0
-    backward = 0
-    for a in range(start, start + size):
-        v = order[a]
-        lo = a
-        hi = a
-        for t in range(indptr[v], indptr[v + 1]):
-            q = pos[indices[t]]
-            lo = min(lo, q)
-            hi = max(hi, q)
-        forward += a - lo
-        backward += hi - a
-    return forward, backward
+def _gps_kernel_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
+                     params):  # pragma: no cover - compiled
+    """Part kernel: GPS of the part of ``low``, kept in the direction of smaller profile."""
+    size, stamp = _gps_part(indptr, indices, deg, low, seen, stamp, order, start, iwork[0:3],
+                            iwork[3:6], iwork[6], iwork[7], iwork[8], iwork[9])
+    forward, backward = _profiles_both_ways(indptr, indices, order, start, size, iwork[7])
+    if backward <= forward:
+        order[start:start + size] = order[start:start + size][::-1].copy()
+    return size, stamp
 
 
-@numba.njit(cache=True, nogil=True)
-def _gps_parts(indptr, indices):  # pragma: no cover - compiled
-    """GPS numbering of every part, each part in the direction of smaller profile."""
-    n = indptr.size - 1
-    deg = np.empty(n, dtype=np.int64)
-    for v in range(n):
-        deg[v] = indptr[v + 1] - indptr[v]
-    seen = np.zeros(n, dtype=np.int64)
-    order = np.empty(n, dtype=np.int64)
-    trees = np.empty((3, n), dtype=np.int64)
-    tree_ptr = np.empty((3, n + 1), dtype=np.int64)
-    cand = np.empty(n, dtype=np.int64)
-    lv = np.empty(n, dtype=np.int64)
-    lu = np.empty(n, dtype=np.int64)
-    comb = np.empty(n, dtype=np.int64)
-    placed = 0
-    stamp = 0
-    for v in _nodes_by_degree(deg):
-        if seen[v] != 0:
-            continue
-        if deg[v] == 0:  # an isolated node is a part of its own
-            seen[v] = 1
-            order[placed] = v
-            placed += 1
-            continue
-        size, stamp = _gps_part(indptr, indices, deg, v, seen, stamp, order, placed, trees,
-                                tree_ptr, cand, lv, lu, comb)
-        forward, backward = _profiles_both_ways(indptr, indices, order, placed, size, lv)
-        if backward <= forward:
-            order[placed:placed + size] = order[placed:placed + size][::-1].copy()
-        placed += size
-    return order
+_gps_kernel = part_kernel(_gps_kernel_part)
 
 
 @register("gps", "Gibbs-Poole-Stockmeyer (1976): pseudo-diameter, combined level structure",
@@ -338,4 +295,4 @@ def gps(graph: NodeGraph) -> NDArray[np.int64]:
     >>> gps(g).tolist()
     [3, 1, 2, 0]
     """
-    return _gps_parts(graph.indptr, graph.indices)
+    return each_part(graph, _gps_kernel, int_rows=10)[0]

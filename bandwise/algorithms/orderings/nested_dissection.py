@@ -31,7 +31,7 @@ from numpy.typing import NDArray
 from bandwise.core.graph import NodeGraph
 
 from . import register
-from .spectral import ordered_by_parts
+from ._parts import ordered_by_parts
 
 __all__ = ["nested_dissection"]
 

@@ -39,7 +39,8 @@ from bandwise.core.errors import InputError
 from bandwise.core.graph import NodeGraph
 
 from . import register
-from ._levels import NO_CAP, _nodes_by_degree, _pseudo_diameter, _sweep
+from ._levels import NO_CAP, _pseudo_diameter, _sweep
+from ._parts import each_part, part_kernel
 
 __all__ = ["sloan"]
 
@@ -48,9 +49,10 @@ __all__ = ["sloan"]
 # ``2 * position + 1`` if active, ``2 * position`` if preactive.  A node's
 # priority lives only in the heap (``hkey``, beside its node in ``heap``) from
 # the moment it becomes preactive; before that it is its initial priority
-# ``base``.  The heap is a binary max-heap on (priority, -node).  Its sifts are
-# written out inside the loop: as compiled calls (even inlined ones) they cost
-# about twice as much, measured on a tetrahedral mesh.
+# ``base``.  The heap is a binary max-heap on (priority, -node).  Its two sifts
+# (down after taking the top, up after a rise) are written out once each inside
+# the loop: as compiled calls (even inlined ones) they cost about twice as much,
+# measured on a tetrahedral mesh.
 INACTIVE = -1
 POSTACTIVE = -2
 
@@ -100,46 +102,27 @@ def _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, out,
             heap[p] = v
             hkey[p] = kv
             slot[v] = (p << 1) | (slot[v] & 1)
-        # -- if it was preactive: its neighbours rise (step 7)
-        if not was_active:
-            for t in range(indptr[i], indptr[i + 1]):
-                j = indices[t]
-                state = slot[j]
-                if state == POSTACTIVE:
-                    continue
-                if state >= 0:
-                    q = state >> 1
-                    key = hkey[q] + w2
-                else:
-                    q = size
-                    size += 1
-                    key = base[j] + w2
-                    slot[j] = q << 1
-                while q > 0:
-                    parent = (q - 1) >> 1
-                    kp = hkey[parent]
-                    if key < kp or (key == kp and j > heap[parent]):
-                        break
-                    u = heap[parent]
-                    heap[q] = u
-                    hkey[q] = kp
-                    slot[u] = (q << 1) | (slot[u] & 1)
-                    q = parent
-                heap[q] = j
-                hkey[q] = key
-                slot[j] = (q << 1) | (slot[j] & 1)
         out[k] = i
         k += 1
-        # -- each preactive neighbour j becomes active: j and its neighbours rise (step 9);
-        #    position indptr[j] - 1 stands for j itself
-        for t in range(indptr[i], indptr[i + 1]):
-            j = indices[t]
-            state = slot[j]
-            if state < 0 or state & 1:
-                continue
-            slot[j] = state | 1
-            for r in range(indptr[j] - 1, indptr[j + 1]):
-                m = j if r < indptr[j] else indices[r]
+        # -- the rises: first, if i was preactive, its neighbours (step 7; the
+        #    pass t = indptr[i] - 1); then each preactive neighbour j becomes
+        #    active and j itself and its neighbours rise (step 9; position
+        #    indptr[j] - 1 stands for j itself)
+        for t in range(indptr[i] - 1, indptr[i + 1]):
+            if t < indptr[i]:
+                if was_active:
+                    continue
+                src = i
+                lo = indptr[i]
+            else:
+                src = indices[t]
+                state = slot[src]
+                if state < 0 or state & 1:
+                    continue
+                slot[src] = state | 1
+                lo = indptr[src] - 1
+            for r in range(lo, indptr[src + 1]):
+                m = src if r < indptr[src] else indices[r]
                 state = slot[m]
                 if state == POSTACTIVE:
                     continue
@@ -151,6 +134,7 @@ def _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, out,
                     size += 1
                     key = base[m] + w2
                     slot[m] = q << 1
+                # the sift-up (the only one)
                 while q > 0:
                     parent = (q - 1) >> 1
                     kp = hkey[parent]
@@ -167,63 +151,46 @@ def _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, out,
     return k - start
 
 
-@numba.njit(cache=True, nogil=True)
-def _sloan_part(indptr, indices, deg, low, w1, w2, key, use_key, seen, stamp, order, start,
-                trees, tree_ptr, cand, base, slot, heap, hkey):  # pragma: no cover - compiled
-    """Sloan numbering of the part of ``low`` into ``order[start:]``; returns ``(size, stamp)``."""
-    if use_key:
+def _sloan_kernel_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
+                       params):  # pragma: no cover - compiled
+    """Part kernel: Sloan numbering of the part of ``low`` into ``order[start:]``.
+
+    ``params`` = (w1, w2, use_key); ``fwork`` rows: key, base, heap keys;
+    ``iwork`` rows: three level structures, their pointers, candidates,
+    node states, heap.
+    """
+    w1 = params[0]
+    w2 = params[1]
+    key = fwork[0]
+    base = fwork[1]
+    slot = iwork[7]
+    trees = iwork[0:3]
+    if params[2] != 0.0:
         stamp += 1
         size, _, _, _ = _sweep(indptr, indices, deg, low, seen, stamp, trees[0], start,
-                               tree_ptr[0], False, NO_CAP)
+                               iwork[3], False, NO_CAP)
         s = low
         for a in range(start, start + size):
             w = trees[0, a]
             base[w] = w1 * key[w] - w2 * (deg[w] + 1)
+            slot[w] = INACTIVE
             if key[w] > key[s] or (key[w] == key[s] and w < s):
                 s = w
     else:
         s, _, size, depth, _, row_e, _, _, stamp = _pseudo_diameter(
-            indptr, indices, deg, low, seen, stamp, trees, tree_ptr, start, cand)
+            indptr, indices, deg, low, seen, stamp, trees, iwork[3:6], start, iwork[6])
         nodes = trees[row_e]
-        level_ptr = tree_ptr[row_e]
+        level_ptr = iwork[3 + row_e]
         for lvl in range(depth):
             for a in range(level_ptr[lvl], level_ptr[lvl + 1]):
                 w = nodes[a]
                 base[w] = w1 * lvl - w2 * (deg[w] + 1)
-    _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, order, start)
+                slot[w] = INACTIVE
+    _number_by_priority(indptr, indices, s, w2, base, slot, iwork[8], fwork[2], order, start)
     return size, stamp
 
 
-@numba.njit(cache=True, nogil=True)
-def _sloan_parts(indptr, indices, w1, w2, key, use_key):  # pragma: no cover - compiled
-    """Sloan numbering of every part, parts started at their node of least degree."""
-    n = indptr.size - 1
-    deg = np.empty(n, dtype=np.int64)
-    for v in range(n):
-        deg[v] = indptr[v + 1] - indptr[v]
-    seen = np.zeros(n, dtype=np.int64)
-    order = np.empty(n, dtype=np.int64)
-    trees = np.empty((3, n), dtype=np.int64)
-    tree_ptr = np.empty((3, n + 1), dtype=np.int64)
-    cand = np.empty(n, dtype=np.int64)
-    base = np.empty(n, dtype=np.float64)
-    slot = np.full(n, INACTIVE, dtype=np.int64)
-    heap = np.empty(n, dtype=np.int64)
-    hkey = np.empty(n, dtype=np.float64)
-    placed = 0
-    stamp = 0
-    for v in _nodes_by_degree(deg):
-        if seen[v] != 0:
-            continue
-        if deg[v] == 0:  # an isolated node is a part of its own
-            seen[v] = 1
-            order[placed] = v
-            placed += 1
-            continue
-        size, stamp = _sloan_part(indptr, indices, deg, v, w1, w2, key, use_key, seen, stamp,
-                                  order, placed, trees, tree_ptr, cand, base, slot, heap, hkey)
-        placed += size
-    return order
+_sloan_kernel = part_kernel(_sloan_kernel_part)
 
 
 @register("sloan", "Sloan (1986, 1989): priority-driven profile and wavefront reduction",
@@ -282,12 +249,17 @@ def sloan(graph: NodeGraph, w1: float = 2.0, w2: float = 1.0,
         raise InputError(f"Sloan weights must be numbers (got w1={w1!r}, w2={w2!r})") from None
     if not (math.isfinite(w1) and math.isfinite(w2) and w1 >= 0 and w2 >= 0):
         raise InputError(f"Sloan weights must be finite and non-negative (got w1={w1}, w2={w2})")
+    return each_part(graph, _sloan_kernel, int_rows=9, float_rows=3,
+                     params=(w1, w2, float(key is not None)), fwork=_key_row(graph, key))[0]
+
+
+def _key_row(graph: NodeGraph, key: NDArray[np.floating] | None) -> NDArray[np.float64] | None:
+    """Scratch rows for the kernel with ``key`` in row 0 (None: no key given)."""
     if key is None:
-        key_arr = np.zeros(0, dtype=np.float64)
-        use_key = False
-    else:
-        key_arr = np.ascontiguousarray(key, dtype=np.float64)
-        if key_arr.shape != (graph.n,) or not np.all(np.isfinite(key_arr)):
-            raise InputError(f"the Sloan key must be one finite number per node ({graph.n})")
-        use_key = True
-    return _sloan_parts(graph.indptr, graph.indices, w1, w2, key_arr, use_key)
+        return None
+    key_arr = np.asarray(key, dtype=np.float64)
+    if key_arr.shape != (graph.n,) or not np.all(np.isfinite(key_arr)):
+        raise InputError(f"the Sloan key must be one finite number per node ({graph.n})")
+    fwork = np.empty((3, graph.n + 1), dtype=np.float64)
+    fwork[0, :graph.n] = key_arr
+    return fwork

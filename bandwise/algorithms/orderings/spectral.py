@@ -47,79 +47,25 @@ Comput. 23 (2001) 517-541.
 from __future__ import annotations
 
 import warnings
-from collections.abc import Callable
 
 import numba
 import numpy as np
 import scipy.linalg as sla
 import scipy.sparse as sp
 from numpy.typing import NDArray
-from scipy.sparse.csgraph import connected_components
 from scipy.sparse.linalg import lobpcg
 
 from bandwise.core.graph import NodeGraph
 
 from . import register
+from ._parts import ordered_by_parts
 
-__all__ = ["fiedler_vector", "laplacian", "ordered_by_parts", "spectral"]
+__all__ = ["fiedler_vector", "laplacian", "spectral"]
 
 #: Largest part whose Fiedler vector is computed by a dense eigensolver.
 DENSE_LIMIT = 500
 #: LOBPCG iterations allowed at each level of the multilevel scheme.
 LEVEL_ITERATIONS = 20
-
-PartOrdering = Callable[[NodeGraph], NDArray[np.int64]]
-
-
-def ordered_by_parts(graph: NodeGraph, order_part: PartOrdering) -> NDArray[np.int64]:
-    """Apply an ordering to each connected part, parts one after another.
-
-    Parts are placed in the order of their lowest current node number; parts
-    of one or two nodes (isolated nodes included) keep their current order,
-    the others are numbered by ``order_part(subgraph)``, which returns a
-    permutation of the part's own nodes (``perm[new] = old`` within the part).
-
-    Parameters
-    ----------
-    graph
-        The node graph.
-    order_part
-        Ordering of one connected subgraph.
-
-    Returns
-    -------
-    ndarray of int64
-        ``perm[new] = old`` over the whole graph.
-    """
-    n = graph.n
-    if n == 0:
-        return np.zeros(0, dtype=np.int64)
-    n_parts, labels = connected_components(graph.to_scipy(), directed=False)
-    if n_parts == 1:
-        return np.asarray(order_part(graph), dtype=np.int64) if n > 2 \
-            else np.arange(n, dtype=np.int64)
-    # rank parts by their lowest node; nodes of a part keep their relative order
-    _, first = np.unique(labels, return_index=True)
-    rank = np.empty(n_parts, dtype=np.int64)
-    rank[np.argsort(first, kind="stable")] = np.arange(n_parts)
-    perm = np.argsort(rank[labels], kind="stable").astype(np.int64)
-    sizes = np.bincount(rank[labels], minlength=n_parts)
-    ends = np.cumsum(sizes)
-    adjacency = graph.to_scipy()
-    for p in np.flatnonzero(sizes > 2):
-        nodes = perm[ends[p] - sizes[p]:ends[p]]
-        perm[ends[p] - sizes[p]:ends[p]] = nodes[order_part(_subgraph(adjacency, nodes))]
-    return perm
-
-
-def _subgraph(adjacency: sp.csr_matrix, nodes: NDArray[np.int64]) -> NodeGraph:
-    """The induced subgraph on ``nodes`` (given in increasing order), renumbered 0..k-1."""
-    sub = adjacency[nodes][:, nodes].tocsr()
-    sub.sort_indices()
-    # the index type of graph_from_cells, so compiled kernels see one signature
-    index_type = np.int32 if nodes.size < 2**31 - 1 else np.int64
-    return NodeGraph(sub.indptr.astype(np.int64), sub.indices.astype(index_type))
-
 
 def laplacian(graph: NodeGraph) -> sp.csr_matrix:
     """The graph Laplacian ``L = D - A`` as a float64 CSR matrix."""

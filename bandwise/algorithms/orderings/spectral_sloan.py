@@ -42,8 +42,9 @@ from numpy.typing import NDArray
 from bandwise.core.graph import NodeGraph
 
 from . import register
+from ._parts import ordered_by_parts
 from .sloan import sloan
-from .spectral import ordered_by_parts, spectral_part
+from .spectral import spectral_part
 
 __all__ = ["spectral_key", "spectral_sloan"]
 
