@@ -60,10 +60,10 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from bandwise.core.dofs import DOF_NAMES, DofLayout, dof_mask, mask_names
+from bandwise.core.dofs import DOF_NAMES, DofLayout, dof_mask, mask_names, popcount
 from bandwise.core.elements import cell_dimension, is_analysed
 from bandwise.core.errors import InputError
-from bandwise.core.model import Model
+from bandwise.core.model import Model, as_xyz
 
 #: Translational DOFs (what ``pinned`` holds).
 TRANSLATIONS = dof_mask(["ux", "uy", "uz"])
@@ -155,7 +155,7 @@ class SupportSet:
     @property
     def n_fixed_dofs(self) -> int:
         """Number of held DOFs (a DOF held by two supports counts once)."""
-        return int(_popcount(self.fixed).sum())
+        return int(popcount(self.fixed).sum())
 
     @property
     def n_supported_nodes(self) -> int:
@@ -364,20 +364,6 @@ def _point(value: Any, origin: str, what: str) -> tuple[float, ...]:
 # --------------------------------------------------------------------------- resolution
 
 
-def _popcount(masks: NDArray[np.int64]) -> NDArray[np.int64]:
-    count = np.zeros(masks.shape, dtype=np.int64)
-    for k in range(len(DOF_NAMES)):
-        count += (masks >> k) & 1
-    return count
-
-
-def _coordinates(model: Model) -> NDArray[np.float64]:
-    pts = model.points
-    if pts.shape[1] < 3:
-        pts = np.column_stack([pts, np.zeros((pts.shape[0], 3 - pts.shape[1]))])
-    return pts
-
-
 def model_extent(pts: NDArray[np.float64]) -> float:
     """Largest coordinate range of the nodes (column by column: fast on (n, 3) arrays)."""
     if pts.shape[0] == 0:
@@ -447,7 +433,7 @@ def select_nodes(model: Model, support: Support, extent: float | None = None,
     ``extent`` (the model's largest coordinate range) scales the default
     tolerance; computed when not given.
     """
-    pts = _coordinates(model)
+    pts = as_xyz(model.points)
     if extent is None:
         extent = model_extent(pts)
     tol = support.tol if support.tol is not None else RELATIVE_TOLERANCE * (extent or 1.0)
@@ -526,7 +512,7 @@ def apply_supports(model: Model, layout: DofLayout, supports: list[Support]) -> 
     used = coupled_nodes(model)
     labels, word = model.node_labels()
     applied = []
-    extent = model_extent(_coordinates(model))
+    extent = model_extent(as_xyz(model.points))
     for support in supports:
         nodes = select_nodes(model, support, extent)
         if nodes.size == 0:
@@ -538,6 +524,6 @@ def apply_supports(model: Model, layout: DofLayout, supports: list[Support]) -> 
                              f"element (first: {word} {int(labels[orphan[0]])}); a support "
                              "there holds nothing")
         held = _requested_mask(support, layout.masks[nodes])
-        applied.append(AppliedSupport(support, nodes, int(_popcount(held).sum())))
+        applied.append(AppliedSupport(support, nodes, int(popcount(held).sum())))
         fixed[nodes] |= held
     return SupportSet(fixed, tuple(applied))

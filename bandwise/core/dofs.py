@@ -36,13 +36,14 @@ from .model import Model
 
 #: DOF names in the order they are numbered within a node.
 DOF_NAMES: tuple[str, ...] = ("ux", "uy", "uz", "rx", "ry", "rz", "t")
-_BIT = {name: 1 << k for k, name in enumerate(DOF_NAMES)}
+#: The bit of each DOF name in a mask.
+DOF_BIT = {name: 1 << k for k, name in enumerate(DOF_NAMES)}
 
-SOLID = _BIT["ux"] | _BIT["uy"] | _BIT["uz"]
-PLANE = _BIT["ux"] | _BIT["uy"]
-PLANE_FRAME = _BIT["ux"] | _BIT["uy"] | _BIT["rz"]
-SPACE = SOLID | _BIT["rx"] | _BIT["ry"] | _BIT["rz"]
-SCALAR = _BIT["t"]
+SOLID = DOF_BIT["ux"] | DOF_BIT["uy"] | DOF_BIT["uz"]
+PLANE = DOF_BIT["ux"] | DOF_BIT["uy"]
+PLANE_FRAME = DOF_BIT["ux"] | DOF_BIT["uy"] | DOF_BIT["rz"]
+SPACE = SOLID | DOF_BIT["rx"] | DOF_BIT["ry"] | DOF_BIT["rz"]
+SCALAR = DOF_BIT["t"]
 
 #: Named physics choices accepted by ``--physics``.
 PHYSICS = ("structural", "scalar")
@@ -69,7 +70,7 @@ class DofLayout:
         """Number of DOFs of each node."""
         if self.unnamed is not None:
             return np.full(self.masks.shape, self.unnamed, dtype=np.int64)
-        return _popcount(self.masks)
+        return popcount(self.masks)
 
     @property
     def total(self) -> int:
@@ -87,7 +88,7 @@ class DofLayout:
         if self.unnamed is not None:
             return [f"dof{k + 1}" for k in range(self.unnamed)]
         m = int(self.masks[node])
-        return [name for name in DOF_NAMES if m & _BIT[name]]
+        return [name for name in DOF_NAMES if m & DOF_BIT[name]]
 
     def counts_by_family(self) -> dict[str, int]:
         """Number of nodes with each DOF signature, e.g. ``{'ux uy uz': 1200}``."""
@@ -99,20 +100,21 @@ class DofLayout:
 
 def mask_names(mask: int) -> str:
     """The DOF names of a mask, space-separated."""
-    return " ".join(name for name in DOF_NAMES if mask & _BIT[name]) or "(none)"
+    return " ".join(name for name in DOF_NAMES if mask & DOF_BIT[name]) or "(none)"
 
 
 def dof_mask(names: list[str]) -> int:
     """The bit mask of a list of DOF names (``ux``, ``rz``, ``t`` ...)."""
     mask = 0
     for name in names:
-        if name not in _BIT:
+        if name not in DOF_BIT:
             raise InputError(f"unknown DOF name {name!r}; known: {' '.join(DOF_NAMES)}")
-        mask |= _BIT[name]
+        mask |= DOF_BIT[name]
     return mask
 
 
-def _popcount(masks: NDArray[np.int64]) -> NDArray[np.int64]:
+def popcount(masks: NDArray[np.int64]) -> NDArray[np.int64]:
+    """Number of DOFs in each mask (the set bits over ``DOF_NAMES``)."""
     m = np.asarray(masks, dtype=np.int64)
     count = np.zeros(m.shape, dtype=np.int64)
     for k in range(len(DOF_NAMES)):

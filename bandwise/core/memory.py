@@ -41,6 +41,7 @@ from pathlib import Path
 from typing import Any
 
 from bandwise.core.errors import InputError, MeshReadError
+from bandwise.core.tables import human_bytes
 
 #: Typical number of neighbours of a node, by main cell type (regular meshes).
 DEGREE = {
@@ -155,14 +156,6 @@ def available_bytes() -> int | None:
         return None
 
 
-def _human(b: int) -> str:
-    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
-        if b < 1024 or unit == "TiB":
-            return f"{b:.0f} {unit}" if unit == "B" else f"{b:.1f} {unit}"
-        b /= 1024
-    return f"{b} B"
-
-
 def check_fits(estimate: int, available: int | None = None, what: str = "this mesh") -> None:
     """Refuse work that will not fit in memory.
 
@@ -187,8 +180,8 @@ def check_fits(estimate: int, available: int | None = None, what: str = "this me
         available = available_bytes()
     if available is None or estimate <= available:
         return
-    raise InputError(f"{what} needs about {_human(estimate)} of memory and the machine has "
-                     f"{_human(available)} available; free memory or use a bigger machine "
+    raise InputError(f"{what} needs about {human_bytes(estimate)} of memory and the machine has "
+                     f"{human_bytes(available)} available; free memory or use a bigger machine "
                      "(BANDWISE_MEMORY_CHECK=off runs anyway)")
 
 

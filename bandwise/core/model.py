@@ -168,6 +168,16 @@ class Model:
         )
 
 
+def as_xyz(points: NDArray[np.floating]) -> NDArray[np.float64]:
+    """Node coordinates as an (n, 3) array: 1D or 2D points get zero trailing coordinates.
+
+    3D points are returned as they are (no copy).
+    """
+    if points.shape[1] < 3:
+        points = np.column_stack([points, np.zeros((points.shape[0], 3 - points.shape[1]))])
+    return points
+
+
 def mapped_connectivity(data: NDArray[Any], new_of_old: NDArray[np.int64]) -> NDArray[Any]:
     """Connectivity with node indices mapped; ragged (object) blocks cell by cell."""
     if data.dtype != object:

@@ -130,6 +130,13 @@ class CheckContext:
         return face_connected_blocks(self.model, self.table)
 
     @cached_property
+    def free_facets(self) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+        """Free facets (bounding one cell only) and the dimension of the cell each bounds."""
+        free = self.table.free
+        free_block, _ = self.table.owner_of(free)
+        return free, np.asarray(self.dims)[free_block]
+
+    @cached_property
     def references(self) -> NDArray[np.int64]:
         """Number of coupling-cell references to each node."""
         counts = np.zeros(self.model.n_nodes, dtype=np.int64)

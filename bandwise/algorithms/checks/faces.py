@@ -23,9 +23,7 @@ def check_free_facets(ctx: CheckContext) -> list[Finding]:
     t = ctx.table
     if t.n_facets == 0:
         return []
-    free = t.free
-    free_block, _ = t.owner_of(free)
-    dims = np.asarray(ctx.dims)[free_block]
+    free, dims = ctx.free_facets
     out = []
     for dim, word in ((3, "faces"), (2, "edges")):
         sel = free[dims == dim]

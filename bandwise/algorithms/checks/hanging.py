@@ -12,6 +12,8 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.spatial import cKDTree
 
+from bandwise.core.model import as_xyz
+
 from .context import CheckContext
 from .findings import Finding, counted
 
@@ -25,18 +27,14 @@ def check_hanging_nodes(ctx: CheckContext) -> list[Finding]:
     t = ctx.table
     if t.n_facets == 0:
         return []
-    free = t.free
-    free_block, _ = t.owner_of(free)
-    dims = np.asarray(ctx.dims)[free_block]
+    free, dims = ctx.free_facets
     free = free[dims >= 2]
     if free.size < 2:
         return []
     tol, rule = ctx.tolerance
     nodes = t.nodes_of(free)
     candidates = np.unique(nodes[nodes >= 0])
-    pts = ctx.model.points
-    if pts.shape[1] == 2:
-        pts = np.column_stack([pts, np.zeros(len(pts))])
+    pts = as_xyz(ctx.model.points)
     facet_pts = pts[np.where(nodes >= 0, nodes, 0)]
     valid = nodes >= 0
     k = valid.sum(axis=1)

@@ -20,6 +20,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bandwise.algorithms.topology import local_facets
+from bandwise.core.model import as_xyz
 
 #: For each corner of a solid: the corner and three neighbours (a, b, c) with
 #: det(pa - p, pb - p, pc - p) > 0 on a positively oriented cell.
@@ -113,9 +114,7 @@ def solid_measures(shape: str, points: NDArray[np.float64], data: NDArray[np.int
     if shape == "tetra":  # every corner of a tetrahedron gives 6 V
         frames = frames[:1]
     n_corners = {"tetra": 4, "pyramid": 5, "wedge": 6, "hexahedron": 8}[shape]
-    pts = np.ascontiguousarray(points, dtype=np.float64)
-    if pts.shape[1] == 2:
-        pts = np.column_stack([pts, np.zeros(len(pts))])
+    pts = np.ascontiguousarray(as_xyz(points), dtype=np.float64)
     return _solid_kernel(pts, np.ascontiguousarray(data, dtype=np.int64), table, frames,
                          n_corners)
 

@@ -22,14 +22,14 @@ import scipy.sparse as sp
 from numpy.typing import NDArray
 from scipy.sparse.csgraph import connected_components
 
-from bandwise.core.dofs import DOF_NAMES, DofLayout
+from bandwise.core.dofs import DofLayout, popcount
 from bandwise.core.graph import NodeGraph
-from bandwise.core.model import Model
+from bandwise.core.model import Model, as_xyz
 
 from ..supports import SupportSet, model_extent, no_supports
 from .bodies import Bodies, make_bodies
 from .constraints import MAX_SPARSE_MODES, _constraints, _null_space, _sparse_null_space
-from .geometry import _coordinates, _Frames, _frames
+from .geometry import _Frames, _frames
 from .links import Link, _add_link_bodies
 from .motions import ROTATIONS, _is_planar, _n_motions, motion_space
 from .results import MomentRelease, PartModes, ZeroEnergyAnalysis, ZeroEnergyMode
@@ -91,7 +91,7 @@ def zero_energy_modes(model: Model, layout: DofLayout, supports: SupportSet | No
         note = ("zero-energy modes not analysed: the DOFs have no standard names or mix a "
                 "scalar field with displacements")
         return ZeroEnergyAnalysis("none", (), 0, (), (note,), labels_word)
-    pts = _coordinates(model)
+    pts = as_xyz(model.points)
     extent = model_extent(pts) or 1.0
     bodies = make_bodies(model, layout, space, labels)
     rigid_links = [ln for ln in links if ln.kind == "rigid" and np.unique(ln.nodes).size > 1]
@@ -175,10 +175,7 @@ def _dofs_without_stiffness(layout: DofLayout, bodies: Bodies, fixed: NDArray[np
         starts = np.flatnonzero(np.r_[True, bodies.node[1:] != bodies.node[:-1]])
         owned[bodies.node[starts]] = np.bitwise_or.reduceat(bodies.own[bodies.body], starts)
     lacking = layout.masks & ~owned & ~fixed
-    count = np.zeros(lacking.shape, dtype=np.int64)
-    for k in range(len(DOF_NAMES)):
-        count += (lacking >> k) & 1
-    return int(count.sum())
+    return int(popcount(lacking).sum())
 
 
 def _parts(bodies: Bodies, n_nodes: int) -> tuple[NDArray[np.int64], int]:

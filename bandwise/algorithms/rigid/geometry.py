@@ -18,7 +18,6 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bandwise.core.dofs import DofLayout
-from bandwise.core.model import Model
 
 from .bodies import Bodies
 from .motions import _BIT, ROTATIONS, _n_motions
@@ -32,13 +31,6 @@ class _Frames:
     size: NDArray[np.float64]       # (nb,)
     basis: NDArray[np.float64]      # (nb, nmot, nmot); kept columns first
     rank: NDArray[np.int64]         # (nb,) number of kept coordinates
-
-
-def _coordinates(model: Model) -> NDArray[np.float64]:
-    pts = model.points
-    if pts.shape[1] < 3:
-        pts = np.column_stack([pts, np.zeros((pts.shape[0], 3 - pts.shape[1]))])
-    return pts
 
 
 def _frames(pts: NDArray[np.float64], bodies: Bodies, layout: DofLayout, space: str,

@@ -14,12 +14,12 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import NDArray
 
-from bandwise.core.dofs import DOF_NAMES, SCALAR, DofLayout
+from bandwise.core.dofs import DOF_BIT, SCALAR, DofLayout
 from bandwise.core.model import Model
 
 from ..supports import model_extent
 
-_BIT = {name: 1 << k for k, name in enumerate(DOF_NAMES)}
+_BIT = DOF_BIT
 ROTATIONS = _BIT["rx"] | _BIT["ry"] | _BIT["rz"]
 
 
