@@ -27,7 +27,7 @@ import numpy as np
 
 from bandwise.core.errors import MeshReadError
 
-from .deck import Deck, ListRewrite, NodeRefs, assembled_deck
+from .deck import Deck, ListRewrite, NodeRefs, assembled_deck, read_deck_text
 
 #: Component digits of the bulk format -> bandwise DOF names.
 DOF_OF_COMPONENT = {"1": "ux", "2": "uy", "3": "uz", "4": "rx", "5": "ry", "6": "rz"}
@@ -651,16 +651,6 @@ def _cards(st: _State, cards: list[Card | Run], lines: list[str]) -> None:
         _card(st, card)
 
 
-def _read_text(path: Path) -> str:
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise MeshReadError(f"{path}: cannot read: {exc.strerror}") from None
-    if b"\x00" in raw:
-        raise MeshReadError(f"{path}: not a text deck (binary content)")
-    return raw.decode("utf-8", errors="surrogateescape")
-
-
 def _include_name(line: str) -> str:
     rest = line[7:].strip()
     return rest.strip("'\"")
@@ -676,7 +666,7 @@ def read_bulk_deck(path: str | Path) -> Deck:
         defined twice, a missing include file.
     """
     path = Path(path)
-    return parse_bulk_deck(_read_text(path), str(path), path.parent)
+    return parse_bulk_deck(read_deck_text(path), str(path), path.parent)
 
 
 def parse_bulk_deck(text: str, source: str = "deck", folder: Path | None = None) -> Deck:
@@ -725,7 +715,7 @@ def _read_include(st: _State, line: str, k: int, folder: Path) -> None:
     if not name or not target.is_file():
         raise MeshReadError(f"{st.path}: line {k + 1}: included file {name!r} not found")
     st.includes.append(name)
-    sub = _read_text(target).splitlines(keepends=True)
+    sub = read_deck_text(target).splitlines(keepends=True)
     cards, nested, _ = bulk_cards(sub, str(target))
     if nested:
         raise MeshReadError(f"{target}: nested include files are not supported")

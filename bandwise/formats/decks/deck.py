@@ -22,6 +22,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 from numpy.typing import NDArray
@@ -281,6 +282,23 @@ class Deck:
                       source=self.path, file_format=fmt)
         validate_model(model)
         return model
+
+
+def read_deck_text(path: Path) -> str:
+    """A deck file's text, bytes that are not UTF-8 kept as they are (surrogate escapes).
+
+    Raises
+    ------
+    MeshReadError
+        The file cannot be read, or holds binary content.
+    """
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise MeshReadError(f"{path}: cannot read: {exc.strerror}") from None
+    if b"\x00" in raw:
+        raise MeshReadError(f"{path}: not a text deck (binary content)")
+    return raw.decode("utf-8", errors="surrogateescape")
 
 
 def assembled_deck(source: str, kind: str, lines: list, state: object,

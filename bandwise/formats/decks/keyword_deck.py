@@ -22,7 +22,7 @@ import numpy as np
 from bandwise.core.errors import MeshReadError
 
 from .columns import Table, comma_table, data_runs
-from .deck import Deck, ListRewrite, NodeRefs, assembled_deck
+from .deck import Deck, ListRewrite, NodeRefs, assembled_deck, read_deck_text
 
 #: DOF numbers of the keyword format -> bandwise DOF names.
 DOF_OF_NUMBER = {1: "ux", 2: "uy", 3: "uz", 4: "rx", 5: "ry", 6: "rz", 11: "t"}
@@ -396,7 +396,7 @@ class _Reader:
         if not name or not target.is_file():
             raise MeshReadError(f"{st.path}: line {k + 1}: included file {name!r} not found")
         st.includes.append(name)
-        text = _read_text(target)
+        text = read_deck_text(target)
         _Reader(text.splitlines(keepends=True), st, False, target.parent).run()
 
     def equation_card(self, k: int, data: list[int]) -> None:
@@ -478,16 +478,6 @@ def _without_option(header: str, option: str) -> str:
     return ",".join(kept)
 
 
-def _read_text(path: Path) -> str:
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise MeshReadError(f"{path}: cannot read: {exc.strerror}") from None
-    if b"\x00" in raw:
-        raise MeshReadError(f"{path}: not a text deck (binary content)")
-    return raw.decode("utf-8", errors="surrogateescape")
-
-
 def read_keyword_deck(path: str | Path) -> Deck:
     """Read a keyword deck (``.inp``) into a :class:`~bandwise.formats.decks.deck.Deck`.
 
@@ -498,7 +488,7 @@ def read_keyword_deck(path: str | Path) -> Deck:
         generation cards, a missing include file.
     """
     path = Path(path)
-    text = _read_text(path)
+    text = read_deck_text(path)
     return parse_keyword_deck(text, str(path), path.parent)
 
 
