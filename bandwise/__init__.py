@@ -51,8 +51,8 @@ from bandwise.core.graph import NodeGraph, graph_from_matrix, node_graph
 from bandwise.core.metrics import Metrics, metrics
 from bandwise.core.model import CellBlock, Model, inverse_permutation
 from bandwise.core.summary import MeshSummary, summarise
+from bandwise.formats import read_model, write_model
 from bandwise.formats.matrix_io import is_matrix_file, read_matrix, write_matrix_market
-from bandwise.formats.meshio_io import read_model, write_model
 from bandwise.formats.node_map import read_node_map, write_dof_map, write_node_map
 
 try:

@@ -21,10 +21,11 @@ from bandwise.core.generate import tet_grid
 from bandwise.core.memory import (
     check_fits,
     estimate_bytes,
-    header_counts,
     memory_estimate,
 )
-from bandwise.formats.meshio_io import read_model, write_model
+from bandwise.formats import read_model, write_model
+from bandwise.formats.headers import HeaderCounts
+from bandwise.formats.registry import header_counts
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -88,7 +89,7 @@ def test_header_counts_of_ascii_gmsh41(tmp_path):
     mesh = to_meshio(tet_grid(4, 4, 4))
     mesh.cell_data = {"gmsh:physical": [[1] * 162], "gmsh:geometrical": [[1] * 162]}
     meshio.gmsh.write(path, mesh, fmt_version="4.1", binary=False)
-    assert header_counts(path) == memory.HeaderCounts(64, 162)
+    assert header_counts(path) == HeaderCounts(64, 162)
 
 
 def test_header_counts_none_where_the_format_does_not_allow(tmp_path):
@@ -100,7 +101,7 @@ def test_header_counts_none_where_the_format_does_not_allow(tmp_path):
 def test_header_counts_of_binary_gmsh41(tmp_path):
     binary = tmp_path / "box.msh"
     write_model(tet_grid(4, 3, 3), binary, "gmsh")   # 4.1 binary: counts are size_t
-    assert header_counts(binary) == memory.HeaderCounts(36, 6 * 3 * 2 * 2)
+    assert header_counts(binary) == HeaderCounts(36, 6 * 3 * 2 * 2)
 
 
 def test_announced_counts_beyond_the_file_size_are_refused(tmp_path):

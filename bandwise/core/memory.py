@@ -27,20 +27,18 @@ built; it is taken from the node degree of regular meshes of the main cell
 type (a node of a tetrahedral mesh has about 14 neighbours, of a
 hexahedral one 26: common practice, from structured meshes).
 
-Set the environment variable ``BANDWISE_MEMORY_CHECK=off`` to run anyway.
+Set the environment variable ``BANDWISE_MEMORY_CHECK=off`` to run anyway.  The
+counts a file announces before its data (read by the file formats,
+:mod:`bandwise.formats.headers`) give the estimate before a file is read.
 """
 
 from __future__ import annotations
 
-import mmap
 import os
 import re
-import struct
 from dataclasses import asdict, dataclass
-from pathlib import Path
-from typing import Any
 
-from bandwise.core.errors import InputError, MeshReadError
+from bandwise.core.errors import InputError
 from bandwise.core.tables import human_bytes
 
 #: Typical number of neighbours of a node, by main cell type (regular meshes).
@@ -183,115 +181,3 @@ def check_fits(estimate: int, available: int | None = None, what: str = "this me
     raise InputError(f"{what} needs about {human_bytes(estimate)} of memory and the machine has "
                      f"{human_bytes(available)} available; free memory or use a bigger machine "
                      "(BANDWISE_MEMORY_CHECK=off runs anyway)")
-
-
-_VTU_PIECE = re.compile(rb'NumberOfPoints="(\d+)"\s+NumberOfCells="(\d+)"')
-#: Bytes read from the start of a file to find its counts (VTU).
-HEADER_BYTES = 1 << 16
-#: Fewest bytes a node and an element take in a gmsh file (text, binary): ``"1 0 0\n"``, three
-#: doubles; an element with its tag and one node.
-_GMSH_MIN_BYTES = {False: (6, 4), True: (24, 8)}
-
-
-@dataclass(frozen=True)
-class HeaderCounts:
-    """Counts a file announces before its data, and whether they can be believed."""
-
-    nodes: int
-    cells: int
-    plausible: bool = True
-
-
-def _gmsh_counts(data: Any) -> HeaderCounts | None:
-    """Nodes and elements announced by a gmsh file (2.2 or 4.x, text or binary)."""
-    head = bytes(data[:256]).split(b"\n")
-    fields = head[1].split() if len(head) > 1 else []
-    if len(fields) < 3:
-        return None
-    four, binary = fields[0].startswith(b"4"), fields[1] == b"1"
-    size_t = "<Q" if fields[2] == b"8" else "<I"
-    counts = []
-    consistent = True
-    for name in (b"$Nodes", b"$Elements"):
-        pos = data.find(name + b"\n")
-        if pos < 0:
-            pos = data.find(name + b"\r\n")
-        if pos < 0:
-            counts.append(0)
-            continue
-        pos = data.find(b"\n", pos) + 1
-        if four and binary:
-            width = struct.calcsize(size_t)
-            raw = bytes(data[pos:pos + 4 * width])
-            if len(raw) < 4 * width:
-                return None
-            head4 = list(struct.unpack("<" + size_t[1] * 4, raw))
-        else:
-            line = bytes(data[pos:data.find(b"\n", pos)]).split()
-            if not line or not all(t.isdigit() for t in line[:4]):
-                return None
-            head4 = [int(t) for t in line[:4]]
-        if four and len(head4) == 4:
-            blocks, count, low, high = head4
-            # blocks, then count tags from low to high: none of these can disagree
-            consistent &= not (count and (blocks == 0 or low < 1 or high < low
-                                          or high - low + 1 < count))
-            counts.append(count)
-        else:  # gmsh 2.2 (the count alone), or 4.0 (blocks, count)
-            counts.append(head4[1] if four and len(head4) > 1 else head4[0])
-    node_bytes, cell_bytes = _GMSH_MIN_BYTES[binary]
-    plausible = consistent and counts[0] * node_bytes + counts[1] * cell_bytes <= len(data)
-    return HeaderCounts(counts[0], counts[1], plausible)
-
-
-def header_counts(path: str | os.PathLike[str]) -> HeaderCounts | None:
-    """Nodes and cells a file announces in its header, without reading its data.
-
-    gmsh 2.2 and 4.x, text or binary (the counts after ``$Nodes`` and
-    ``$Elements``), and VTU (its ``Piece`` element).  Other formats: None.
-    A gmsh file announcing more nodes and elements than its size can hold,
-    or (4.x) counts its entity blocks and tag range contradict, is marked
-    not plausible.
-    """
-    try:
-        with open(path, "rb") as fh:
-            if os.fstat(fh.fileno()).st_size == 0:
-                return None
-            with mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as data:
-                if data[:11] == b"$MeshFormat":
-                    return _gmsh_counts(data)
-                head = bytes(data[:HEADER_BYTES])
-    except (OSError, ValueError, struct.error):
-        return None
-    piece = _VTU_PIECE.search(head)
-    if piece and b"UnstructuredGrid" in head:
-        return HeaderCounts(int(piece.group(1)), int(piece.group(2)))
-    return None
-
-
-def check_file_fits(path: str | os.PathLike[str], available: int | None = None) -> None:
-    """Refuse, from its header alone, a file whose mesh will not fit (see :func:`header_counts`).
-
-    The header gives no cell types: cells of unknown type count 4 nodes and
-    a node degree of 6; when it gives no cell count, every node counts as in
-    one cell.  Both err low, so that nothing that fits is refused.
-
-    Raises
-    ------
-    MeshReadError
-        The header announces more than the file can hold (cut short, damaged).
-    InputError
-        The mesh will not fit in memory.
-    """
-    counts = header_counts(path)
-    if counts is None:
-        return
-    if not counts.plausible:
-        raise MeshReadError(f"{path}: the header's counts ({counts.nodes:,} nodes, "
-                            f"{counts.cells:,} elements) contradict its entity blocks or tag "
-                            f"range, or exceed what {Path(path).stat().st_size:,} bytes can "
-                            "hold: the file is cut short or damaged")
-    n, cells = counts.nodes, counts.cells
-    streamed = Path(path).suffix.lower() == ".vtu"  # read by the streaming reader
-    check_fits(estimate_bytes(n, {"unknown": cells or n}, streamed=streamed), available,
-               what=str(path))

@@ -79,6 +79,10 @@ class Model:
         gmsh periodic entities as meshio gives them; node pairs are permuted.
     source
         Path and format the model was read from (informative only).
+    file_kind
+        The kind of file it was read from (format, version, encoding,
+        compression: a ``bandwise.formats.registry.FileKind``), so that an
+        output of the same format is written the same way; None when unknown.
     """
 
     points: NDArray[np.float64]
@@ -93,6 +97,7 @@ class Model:
     info: Any = None
     source: str = ""
     file_format: str = ""
+    file_kind: Any = None
 
     @property
     def n_nodes(self) -> int:

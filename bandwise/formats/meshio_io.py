@@ -1,12 +1,17 @@
-"""The one adapter between meshio and bandwise's :class:`~bandwise.core.model.Model`.
+"""The adapter between meshio and bandwise's :class:`~bandwise.core.model.Model`.
 
-Reading guards against meshio's traps: ``.msh`` is read as gmsh unless told
-otherwise (meshio would try the ANSYS reader first and print its failure);
-meshio prints and calls ``sys.exit`` when no reader succeeds, so its stdout is
-captured and ``SystemExit`` caught; readers raise many exception types on
-malformed files, each turned into one :class:`MeshReadError` line.  Writing
-builds a fresh ``meshio.Mesh`` from copies (the VTU/VTK writers empty the
-point sets of the mesh they are given) into a temporary folder, then renames.
+Reading guards against meshio's traps: meshio prints and calls
+``sys.exit`` when no reader succeeds, so its output is captured and
+``SystemExit`` caught; readers raise many exception types on malformed
+files, each turned into one :class:`MeshReadError` line; damaged headers
+that would keep a reader busy for minutes or allocate gigabytes are refused
+first.  A model read is then put in bandwise's terms: gmsh nodes in the
+order of their tags, gmsh bounding entities kept as metadata, FLAC3D groups
+under their own names, cells in bandwise's node order
+(:mod:`bandwise.formats.conventions`), sets written as 0/1 fields turned
+back into sets.  Writing builds a fresh ``meshio.Mesh`` from copies (the
+VTU/VTK writers empty the point sets of the mesh they are given) and calls
+meshio's public ``write``.
 
 ``.vtu`` files are first offered to the streaming reader :mod:`bandwise.formats.vtu`:
 meshio's VTU reader holds the whole file, a document tree and whole-array
@@ -15,6 +20,10 @@ of VTU, its peak memory growth was about 4 x the mesh's arrays and bandwise's
 read + graph + metrics 3.8 x; with the streaming reader bandwise's is about
 2 x, and its read takes about half meshio's time; figures noisy).  Whatever
 the streaming reader does not handle is read by meshio as before.
+
+Only this module, :mod:`bandwise.formats.gmsh_writer` and
+:mod:`bandwise.formats.mesh_io` import meshio, and only through its public
+API; its private names are in :mod:`bandwise.formats.compat`.
 """
 
 from __future__ import annotations
@@ -32,13 +41,11 @@ from typing import Any
 import numpy as np
 
 from bandwise.core.elements import node_count
-from bandwise.core.errors import InputError, MeshReadError, MeshWriteError, one_line
+from bandwise.core.errors import MeshReadError, one_line
 from bandwise.core.model import CellBlock, Model
 
-from .atomic import atomic_folder
-
-#: Extensions read by meshio, with bandwise's choice where meshio's is ambiguous.
-_COMPOUND = (".vol.gz", ".post.gz", ".dato.gz")
+from . import compat, conventions, headers
+from .gmsh_writer import BOUNDING
 
 
 def _meshio():
@@ -47,48 +54,7 @@ def _meshio():
     return meshio
 
 
-def known_formats() -> list[str]:
-    """Names of the mesh formats meshio can read (for ``--format``)."""
-    from meshio._helpers import reader_map
-
-    return sorted(reader_map)
-
-
-def writable_formats() -> list[str]:
-    """The names of every format this installation can write, sorted."""
-    from meshio._helpers import _writer_map  # the names meshio writes
-
-    return sorted(_writer_map)
-
-
-def detect_format(path: str | os.PathLike[str]) -> str:
-    """The meshio format name for a path, from its extension.
-
-    ``.msh`` means gmsh (meshio also lists ANSYS for it); pass ``--format
-    ansys`` for a Fluent/ANSYS ``.msh`` file.
-
-    Raises
-    ------
-    MeshReadError
-        If the extension is not one meshio reads.
-    """
-    from meshio._helpers import extension_to_filetypes
-
-    name = Path(path).name.lower()
-    ext = next((c for c in _COMPOUND if name.endswith(c)), Path(name).suffix)
-    if ext == ".msh":
-        return "gmsh"
-    types = extension_to_filetypes.get(ext)
-    if not types:
-        shown = ext or "(none)"
-        raise MeshReadError(
-            f"{path}: unknown file extension {shown}; name the format with --format "
-            f"(one of: {', '.join(known_formats())})"
-        )
-    return types[0]
-
-
-def _one_line(exc: BaseException) -> str:
+def failure_text(exc: BaseException) -> str:
     """A reader's or writer's failure in one line, with the exception's name when it helps."""
     text, name = one_line(exc), type(exc).__name__
     if isinstance(exc, SystemExit):
@@ -173,58 +139,24 @@ def _check_enddata(path: Path) -> None:
         raise MeshReadError(f"{path}: no ENDDATA card: the bulk-data deck is cut short")
 
 
-def _gmsh_version(path: Path) -> str | None:
-    """'2.2' or '4.1' read from a gmsh file header, else None."""
-    try:
-        with open(path, "rb") as fh:
-            head = fh.read(64).split()
-    except OSError:
-        return None
-    if len(head) >= 2 and head[0] == b"$MeshFormat":
-        return head[1].decode("ascii", "replace")
-    return None
+def read_file(path: Path, fmt: Any) -> Model:
+    """Read a mesh file of registry format ``fmt`` (see :func:`bandwise.formats.read_model`).
 
-
-def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> Model:
-    """Read a mesh file into a :class:`Model`.
-
-    Parameters
-    ----------
-    path
-        Any file meshio reads.  The file is opened read-only.
-    file_format
-        A meshio format name; overrides detection from the extension.
-
-    Raises
-    ------
-    MeshReadError
-        Missing or unreadable file, unknown extension, malformed content, an
-        empty mesh, cells that refer to missing nodes, non-finite coordinates.
+    Refuses from the header a file too big for the machine or announcing
+    more than it holds, then reads (the streaming reader for VTU, else
+    meshio) and validates.
     """
-    path = Path(path)
-    if not path.exists():
-        raise MeshReadError(f"{path}: no such file")
-    if path.is_dir():
-        raise MeshReadError(f"{path}: is a folder, not a mesh file")
-    if not os.access(path, os.R_OK):
-        raise MeshReadError(f"{path}: permission denied")
-    if file_format is not None and file_format not in known_formats():
-        raise InputError(f"unknown format {file_format!r}; one of: {', '.join(known_formats())}")
-    fmt = file_format or detect_format(path)
-    if path.stat().st_size == 0:
-        raise MeshReadError(f"{path}: the file is empty")
-    from bandwise.core.memory import (
-        check_file_fits,  # refuse from the header a mesh too big to read
-    )
-
-    check_file_fits(path)
-    if fmt == "gmsh":
+    counts = fmt.counts(path) if fmt.counts is not None else None
+    headers.check_counts_fit(path, counts, streamed=fmt.name == "vtu")
+    if fmt.name in ("gmsh", "gmsh22"):
         _check_gmsh_data_headers(path)
-    if fmt == "nastran":
+    if fmt.name == "nastran":
         _check_enddata(path)
-    if fmt == "abaqus":
+    if fmt.name == "abaqus":
         _check_generate_ranges(path)
-    if fmt == "vtu":  # streaming fast path (see the module docstring); meshio if not handled
+    from bandwise.core.memory import check_fits, estimate_bytes
+
+    if fmt.name == "vtu":  # streaming fast path (see the module docstring); meshio if not handled
         from .vtu import NotHandled, read_vtu
 
         try:
@@ -233,83 +165,113 @@ def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> 
             fast = None
         if fast is not None:
             validate_model(fast)
-            from bandwise.core.memory import check_fits, estimate_bytes
-
             check_fits(estimate_bytes(fast.n_nodes, fast.cells_by_type(), streamed=True),
                        what=str(path))
             from .keeps import sets_from_fields
 
             return sets_from_fields(fast)
+    node_tags: dict[str, np.ndarray] = {}
+    with compat.gmsh_node_tags(_check_node_tags, node_tags):
+        mesh = _meshio_read(path, fmt.meshio_name or fmt.name)
+    model = model_from_meshio(mesh, source=str(path), file_format=fmt.name)
+    validate_model(model)
+    check_fits(estimate_bytes(model.n_nodes, model.cells_by_type()), what=str(path))
+    model = _in_bandwise_terms(model, fmt.name)
+    return _in_tag_order(model, node_tags.get("tags"))
+
+
+def read_back(path: Path, fmt: Any) -> Model:
+    """Read a file just written, as a downstream user's meshio would: nodes in file order."""
+    mesh = _meshio_read(path, fmt.meshio_name or fmt.name)
+    model = model_from_meshio(mesh, source=str(path), file_format=fmt.name)
+    validate_model(model)
+    return _in_bandwise_terms(model, fmt.name)
+
+
+def _meshio_read(path: Path, name: str) -> Any:
+    """``meshio.read``, its printing captured and every failure turned into one line."""
     meshio = _meshio()
     captured = io.StringIO()
-    node_tags: dict[str, np.ndarray] = {}
     try:
         with contextlib.redirect_stdout(captured), contextlib.redirect_stderr(captured), \
                 warnings.catch_warnings():
             warnings.simplefilter("ignore")
             logging.disable(logging.CRITICAL)
             try:
-                with _gmsh41_node_tags(node_tags):
-                    mesh = meshio.read(path, file_format=fmt)
+                return meshio.read(path, file_format=name)
             finally:
                 logging.disable(logging.NOTSET)
-    except (SystemExit, KeyboardInterrupt) as exc:
-        if isinstance(exc, KeyboardInterrupt):
-            raise
-        raise MeshReadError(f"{path}: cannot read as {fmt}: {_one_line(exc)}") from None
+    except KeyboardInterrupt:
+        raise
+    except SystemExit as exc:
+        raise MeshReadError(f"{path}: cannot read as {name}: {failure_text(exc)}") from None
     except MemoryError:
         raise MeshReadError(f"{path}: not enough memory to read the file") from None
     except Exception as exc:  # noqa: BLE001  meshio readers raise any type on malformed files
-        raise MeshReadError(f"{path}: cannot read as {fmt}: {_one_line(exc)}") from None
-    model = model_from_meshio(mesh, source=str(path), file_format=fmt)
-    if fmt == "gmsh" and _gmsh_version(path) == "2.2":
-        model.file_format = "gmsh22"
-    validate_model(model)
-    from bandwise.core.memory import check_fits, estimate_bytes  # before any graph is built
+        raise MeshReadError(f"{path}: cannot read as {name}: {failure_text(exc)}") from None
 
-    check_fits(estimate_bytes(model.n_nodes, model.cells_by_type()), what=str(path))
-    from .keeps import sets_from_fields  # sets written as 0/1 fields where a format has none
 
-    return sets_from_fields(_in_tag_order(model, node_tags.get("tags")))
+def _in_bandwise_terms(model: Model, fmt: str) -> Model:
+    """A model as meshio read it, put in bandwise's terms (see the module docstring)."""
+    from .keeps import sets_from_fields
+
+    if fmt in ("gmsh", "gmsh22"):
+        _bounding_entities(model)
+    if fmt == "flac3d":
+        _flac3d_groups(model)
+    conventions.in_model_order(fmt, model)
+    return sets_from_fields(model)
+
+
+def _bounding_entities(model: Model) -> None:
+    """Move meshio's ``gmsh:bounding_entities`` (entity tags, not cells) into the metadata."""
+    arrays = model.cell_sets.pop(BOUNDING, None)
+    geometrical = model.cell_data.get("gmsh:geometrical")
+    if arrays is None or geometrical is None:
+        return
+    found: dict[tuple[int, int], tuple[int, ...]] = {}
+    for b, tags, bounds in zip(model.cells, geometrical, arrays):
+        if len(tags) and bounds is not None and len(bounds):
+            found[(b.dimension or 0, int(tags[0]))] = tuple(int(t) for t in np.ravel(bounds))
+    if found:
+        model.field_data[BOUNDING] = found
+
+
+_FLAC3D_GROUP = re.compile(r'^(zone|face):(.*):"?([^":]*)"?$')
+
+
+def _flac3d_groups(model: Model) -> None:
+    """FLAC3D zone and face groups under their own names, members per cell block.
+
+    meshio names a group ``zone:NAME:SLOT`` and gives its members as indices
+    into all cells (:data:`bandwise.formats.compat.FLAC3D_SET_INDICES_GLOBAL`).
+    A group in the default slot keeps its name; another slot is added as
+    ``NAME:SLOT``; a face group whose name a zone group has is ``face:NAME``.
+    """
+    starts = np.cumsum([0] + [len(b) for b in model.cells])
+    renamed: dict[str, list[np.ndarray]] = {}
+    for key in list(model.cell_sets):
+        m = _FLAC3D_GROUP.match(key)
+        if m is None:
+            continue
+        arrays = model.cell_sets.pop(key)
+        entity, name, slot = m.groups()
+        if slot not in ("Default", "1", ""):
+            name = f"{name}:{slot}"
+        if entity == "face" and name in renamed:
+            name = f"face:{name}"
+        local = []
+        for k, idx in enumerate(arrays[:len(model.cells)]):
+            idx = np.asarray(idx if idx is not None else [], dtype=np.int64)
+            if compat.FLAC3D_SET_INDICES_GLOBAL:
+                idx = idx - starts[k]
+            local.append(idx[(idx >= 0) & (idx < len(model.cells[k]))])
+        renamed[name] = local
+    model.cell_sets.update(renamed)
 
 
 #: Largest node tag accepted, as a multiple of the node count (sparse tags are allowed).
 _TAG_SPREAD = 100
-
-
-@contextlib.contextmanager
-def _gmsh41_node_tags(store: dict[str, np.ndarray]):
-    """Keep the node tags meshio's gmsh 4.1 reader reads and then drops; check both readers' tags.
-
-    That reader returns the nodes in file order, grouped by geometrical
-    entity, while a file's node numbering is its node tags (meshio's own
-    writer gives tag = index + 1 but writes the nodes entity by entity).
-    Both gmsh readers next allocate an array as long as the largest tag: a
-    damaged tag (a billion) is refused here, before that.
-    """
-    try:
-        from meshio.gmsh import _gmsh22, _gmsh41
-        originals = (_gmsh41._read_nodes, _gmsh22._read_nodes)
-    except (ImportError, AttributeError):  # another meshio layout: file order is kept
-        yield
-        return
-
-    def reading41(*args: Any, **kwargs: Any) -> Any:
-        points, tags, dim_tags = originals[0](*args, **kwargs)
-        _check_node_tags(np.asarray(tags) + 1)
-        store["tags"] = np.array(tags)
-        return points, tags, dim_tags
-
-    def reading22(*args: Any, **kwargs: Any) -> Any:
-        points, tags = originals[1](*args, **kwargs)
-        _check_node_tags(np.asarray(tags))
-        return points, tags
-
-    _gmsh41._read_nodes, _gmsh22._read_nodes = reading41, reading22
-    try:
-        yield
-    finally:
-        _gmsh41._read_nodes, _gmsh22._read_nodes = originals
 
 
 def _check_node_tags(tags: np.ndarray) -> None:
@@ -432,21 +394,29 @@ def validate_model(model: Model) -> None:
             raise MeshReadError(f"{src}: element field {name!r} does not match the cell blocks")
 
 
-def to_meshio(model: Model) -> Any:
-    """A fresh ``meshio.Mesh`` built from copies of the model's arrays."""
+
+
+def to_meshio(model: Model, fmt: str | None = None) -> Any:
+    """A fresh ``meshio.Mesh`` built from copies of the model's arrays.
+
+    With ``fmt`` (a registry name) the cells are put in that format's node
+    order (:mod:`bandwise.formats.conventions`).  Metadata that is not a
+    meshio field (bandwise's own ``gmsh:bounding_entities``) stays out.
+    """
     meshio = _meshio()
     cells = []
     for b in model.cells:
         if b.data.dtype == object:
             cells.append(meshio.CellBlock(b.type, [np.array(c) for c in b.data]))
         else:
-            cells.append(meshio.CellBlock(b.type, np.array(b.data)))
+            data = conventions.file_order(fmt, b.data, b.type) if fmt else b.data
+            cells.append(meshio.CellBlock(b.type, np.array(data)))
     return meshio.Mesh(
         np.array(model.points),
         cells,
         point_data={k: np.array(v) for k, v in model.point_data.items()},
         cell_data={k: [np.array(a) for a in v] for k, v in model.cell_data.items()},
-        field_data=dict(model.field_data),
+        field_data={k: v for k, v in model.field_data.items() if not isinstance(v, dict)},
         point_sets={k: np.array(v) for k, v in model.point_sets.items()},
         cell_sets={k: [np.array(a) for a in v] for k, v in model.cell_sets.items()},
         gmsh_periodic=model.periodic,
@@ -454,62 +424,20 @@ def to_meshio(model: Model) -> Any:
     )
 
 
-def gmsh_dim_tags(model: Model) -> np.ndarray:
-    """Entity (dimension, tag) of every node, which meshio's gmsh 4.1 writer needs.
+def write_mesh(path: Path, mesh: Any, name: str, options: dict[str, Any]) -> None:
+    """``meshio.write`` of a mesh to a path in the output's temporary folder."""
+    _meshio().write(path, mesh, file_format=name, **options)
 
-    As gmsh classifies nodes, each node is given to the lowest-dimensional
-    cell containing it, with that cell's ``gmsh:geometrical`` tag (1 when the
-    model has none), so that every entity an element block names exists.
-    """
-    dim_tags = np.zeros((model.n_nodes, 2), dtype=np.int64)
-    dim_tags[:, 1] = 1
-    geometrical = model.cell_data.get("gmsh:geometrical")
-    for k, block in sorted(enumerate(model.cells), key=lambda kb: -(kb[1].dimension or 0)):
-        if block.data.dtype == object or not len(block):
-            continue
-        dim = block.dimension or 0
-        tags = geometrical[k] if geometrical is not None else np.ones(len(block), np.int64)
-        nodes = block.data.ravel()
-        dim_tags[nodes, 0] = dim
-        dim_tags[nodes, 1] = np.repeat(np.asarray(tags, dtype=np.int64), block.data.shape[1])
-    return dim_tags
+
+def read_model(path: str | os.PathLike[str], file_format: str | None = None) -> Model:
+    """:func:`bandwise.formats.read_model` (kept here for existing callers)."""
+    from .mesh_io import read_model as read
+
+    return read(path, file_format)
 
 
 def write_model(model: Model, path: str | os.PathLike[str], file_format: str | None = None) -> str:
-    """Write a model atomically; returns the meshio format name used.
+    """:func:`bandwise.formats.write_model`, returning the format name (for existing callers)."""
+    from .mesh_io import write_model as write
 
-    The format is ``file_format`` if given, else the one the extension
-    implies; a gmsh 2.2 source written to ``.msh`` stays gmsh 2.2.
-
-    Raises
-    ------
-    MeshWriteError
-        The folder is missing or not writable, or the format cannot hold the mesh.
-    """
-    path = Path(path)
-    if file_format is None:
-        try:
-            file_format = detect_format(path)
-        except MeshReadError as exc:
-            raise MeshWriteError(str(exc)) from None
-        if file_format == "gmsh" and model.file_format == "gmsh22":
-            file_format = "gmsh22"
-    from .keeps import prepared_for  # gmsh needs element tags: built from the cell sets
-
-    model = prepared_for(model, file_format)
-    mesh = to_meshio(model)
-    if file_format == "gmsh" and "gmsh:dim_tags" not in mesh.point_data \
-            and len({b.type for b in model.cells}) > 1:
-        mesh.point_data["gmsh:dim_tags"] = gmsh_dim_tags(model)
-    meshio = _meshio()
-    with atomic_folder(path) as tmp:
-        try:
-            with contextlib.redirect_stdout(io.StringIO()), \
-                    contextlib.redirect_stderr(io.StringIO()), warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                meshio.write(tmp / path.name, mesh, file_format=file_format)
-        except MeshWriteError:
-            raise
-        except Exception as exc:  # noqa: BLE001  meshio writers raise any type
-            raise MeshWriteError(f"{path}: cannot write as {file_format}: {_one_line(exc)}") from None
-    return file_format
+    return write(model, path, file_format).format

@@ -11,7 +11,8 @@ integers and the data; a compressed array's header is
 
 The reader builds the same :class:`~bandwise.core.model.Model` as meshio's VTU
 reader followed by :func:`bandwise.formats.meshio_io.model_from_meshio` (cell blocks
-are runs of one VTK cell type, typed and reordered with meshio's own tables).
+are runs of one VTK cell type, typed and reordered with meshio's own tables, reached
+through :mod:`bandwise.formats.compat`).
 For anything it does not handle -- ascii or appended data, lzma, several
 pieces, big-endian files, polyhedra, polygons, cells of unknown type,
 offsets that do not match fixed-size cells, damaged data -- it raises
@@ -261,8 +262,9 @@ def read_vtu(path: str | Path) -> Model:
     path
         A VTK XML UnstructuredGrid file with inline binary (raw or zlib) data.
     """
-    from meshio._common import num_nodes_per_cell
-    from meshio._vtk_common import vtk_to_meshio_order, vtk_to_meshio_type
+    from .compat import vtk_cell_tables
+
+    vtk_to_meshio_type, vtk_to_meshio_order, num_nodes_per_cell = vtk_cell_tables()
 
     with open(path, "rb") as f:
         try:

@@ -23,8 +23,8 @@ from bandwise.core.graph import node_graph
 from bandwise.core.paths import same_file
 from bandwise.core.progress import Progress, ProgressCallback, as_progress, step
 from bandwise.core.summary import count_parts
-from bandwise.formats.keeps import losses_for_output
-from bandwise.formats.meshio_io import read_model, write_model
+from bandwise.formats import plan_output, read_model, write_model
+from bandwise.formats.mesh_io import check_output
 
 
 @dataclass(frozen=True)
@@ -41,6 +41,9 @@ class MergeOutcome:
         Connected parts before and after merging.
     losses
         What the output format cannot carry.
+    output_kind, output_notes
+        The kind of file written (format, version, encoding, compression), and
+        how it differs from the input's.
     labels, label_kind
         How nodes are named to the user (original ids or 1-based positions).
     """
@@ -55,6 +58,8 @@ class MergeOutcome:
     labels: NDArray[np.int64] = field(default_factory=lambda: np.zeros(0, np.int64),
                                       repr=False, compare=False)
     label_kind: str = "1-based node position"
+    output_kind: dict[str, str | None] | None = None
+    output_notes: tuple[str, ...] = ()
 
     @property
     def n_merged(self) -> int:
@@ -71,6 +76,7 @@ class MergeOutcome:
         r, labels = self.merge, self.labels
         return {"bandwise_version": __version__, "caution": CAUTION,
                 "file": self.input, "output": self.output, "output_format": self.output_format,
+                "output_kind": self.output_kind, "output_notes": list(self.output_notes),
                 "tolerance": r.tolerance, "tolerance_rule": r.rule,
                 "nodes_before": r.model.n_nodes + r.n_merged, "nodes_after": r.model.n_nodes,
                 "merged": r.n_merged, "parts_before": self.parts_before,
@@ -101,6 +107,7 @@ def merge_file(src: str | os.PathLike[str], dst: str | os.PathLike[str], *,
     progress = as_progress(progress)
     if same_file(src, dst):
         raise InputError(f"{dst} is the input file; the input is never overwritten")
+    check_output(dst, output_format)
     with step(progress, "reading the mesh"):
         model = read_model(src, file_format)
     graph = node_graph(model)
@@ -108,9 +115,9 @@ def merge_file(src: str | os.PathLike[str], dst: str | os.PathLike[str], *,
     with step(progress, "merging coincident nodes"):
         result = merged_model(model, tolerance, relative_tolerance, graph=graph)
     parts_after, _ = count_parts(node_graph(result.model))
-    lost = tuple(losses_for_output(result.model, Path(dst), output_format))
-    with step(progress, "writing the mesh"):
-        used_format = write_model(result.model, dst, output_format)
+    plan = plan_output(result.model, Path(dst), output_format)
+    with step(progress, "writing the mesh"):  # to a temporary place, read back, then renamed
+        write_model(result.model, dst, plan=plan)
     labels, kind = model.node_labels()
-    return MergeOutcome(str(src), str(dst), used_format, result, parts_before, parts_after,
-                        lost, labels, kind)
+    return MergeOutcome(str(src), str(dst), plan.format, result, parts_before, parts_after,
+                        plan.losses, labels, kind, plan.kind.to_dict(), plan.notes)

@@ -35,20 +35,20 @@ from bandwise.algorithms.orderings.frontal import (
 from bandwise.algorithms.supports import Support
 from bandwise.core.caution import CAUTION
 from bandwise.core.dofs import DofLayout, dof_layout
-from bandwise.core.errors import InputError, MeshReadError, MeshWriteError
+from bandwise.core.errors import InputError, MeshWriteError
 from bandwise.core.graph import NodeGraph, graph_from_matrix, node_graph
 from bandwise.core.model import Model
 from bandwise.core.paths import same_extension, same_file
 from bandwise.core.progress import Progress, ProgressCallback, as_progress, step
+from bandwise.formats import OutputPlan, plan_output, read_model, write_model
 from bandwise.formats.decks.files import deck_graph, deck_to_renumber, write_renumbered_deck
-from bandwise.formats.keeps import losses_for_output
 from bandwise.formats.matrix_io import (
     is_matrix_file,
     is_matrix_market_name,
     read_matrix_data,
     write_matrix_market,
 )
-from bandwise.formats.meshio_io import detect_format, read_model, writable_formats, write_model
+from bandwise.formats.mesh_io import check_output
 from bandwise.formats.node_map import write_node_map
 
 from .check import CheckResult, analyse_matrix, analyse_model
@@ -66,6 +66,11 @@ class RenumberResult:
         The file read, the renumbered file written, the old-to-new node map.
     output_format
         How the output was written (format name, or the deck rewrite).
+    output_kind
+        The kind of file written (format, version, encoding, compression),
+        None for a deck rewritten in place or a matrix.
+    output_notes
+        How that kind differs from the input's (a version not written ...).
     level
         Where the figures were measured (DOF level and its rule, or matrix rows).
     options
@@ -100,6 +105,8 @@ class RenumberResult:
     equations: RenumberedEquations | None = None
     dof_map: str | None = None
     check: CheckResult | None = None
+    output_kind: dict[str, str | None] | None = None
+    output_notes: tuple[str, ...] = ()
     model: Model | None = field(default=None, repr=False, compare=False)
     graph: NodeGraph | None = field(default=None, repr=False, compare=False)
     layout: DofLayout | int = field(default=1, repr=False, compare=False)
@@ -123,6 +130,8 @@ class RenumberResult:
             "input": self.input,
             "output": self.output,
             "output_format": self.output_format,
+            "output_kind": self.output_kind,
+            "output_notes": list(self.output_notes),
             "node_map": self.node_map,
             "level": self.level,
             "options": self.options,
@@ -248,16 +257,8 @@ def _output_format(source: Path, out: Path, input_format: str,
 
 
 def _check_writable_format(out: Path, fmt: str | None) -> None:
-    """Fail before any work when OUT's format is unknown."""
-    if fmt is None:
-        try:
-            detect_format(out)
-        except MeshReadError:
-            raise MeshWriteError(f"{out}: unknown output extension; name the format with "
-                                 "--output-format") from None
-    elif fmt not in writable_formats():
-        raise InputError(f"unknown output format {fmt!r}; one of: "
-                         f"{', '.join(writable_formats())}")
+    """Fail before any work when OUT's format is unknown, or not one bandwise writes."""
+    check_output(out, fmt)
 
 
 def _renumber_matrix(source: Path, out: Path, node_map: Path, methods: str, objective: str,
@@ -306,6 +307,8 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
         raise InputError(f"{source}: no element couples two nodes (only vertex cells?): "
                          "nothing to renumber")
     fmt = _output_format(source, out, model.file_format, output_format)
+    # what the output will be and lose, decided (or refused) before the orderings run
+    plan: OutputPlan | None = None if deck is not None else plan_output(model, out, fmt)
     comp = compare_orderings(graph, methods, objective, layout, options, progress)
     perm = comp.best.perm
     file_supports = None if deck is None else deck_support_set(deck, layout)
@@ -325,7 +328,7 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
         with step(progress, "ordering elements"):
             front = frontal_reordering(renumbered, layout)
             renumbered = reordered_elements(renumbered, front.order)
-    lost = () if deck is not None else tuple(losses_for_output(renumbered, out, fmt))
+    lost = () if plan is None else plan.losses
     deck_info = None
     with step(progress, "writing the mesh"):
         if deck is not None:
@@ -333,11 +336,14 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
             written = f"{deck.kind} deck, node ids rewritten in place"
             deck_info = {"changed_cards": rewrite.changed_cards,
                          "notes": deck.notes + rewrite.notes}
-        else:
-            written = write_model(renumbered, out, fmt)
+        else:  # written to a temporary place, read back and compared, then renamed
+            write_model(renumbered, out, plan=plan)
+            written = plan.format
     write_node_map(node_map, perm, model.node_ids)
     level = f"DOF level, {layout.total:,} DOFs: {layout.rule}"
     return RenumberResult(str(source), str(out), written, str(node_map), level, options, comp,
                           front, lost, deck_info, equations,
                           None if dof_map is None else str(dof_map), check,
+                          None if plan is None else plan.kind.to_dict(),
+                          () if plan is None else plan.notes,
                           model, graph, layout)

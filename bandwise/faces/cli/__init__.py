@@ -85,8 +85,8 @@ def _json_default(obj: Any) -> Any:
 
 
 FormatOpt = Annotated[str | None, typer.Option(
-    "--format", help="meshio format name of the input; overrides the extension "
-                     "(.msh is read as gmsh unless told otherwise).")]
+    "--format", help="Format name of the input (gmsh, vtu, med, ...); overrides the "
+                     "extension (.msh is read as gmsh unless told otherwise).")]
 DofsOpt = Annotated[int | None, typer.Option(
     "--dofs-per-node", min=1, max=64,
     help="DOFs at every node; default: chosen from the element families present.")]

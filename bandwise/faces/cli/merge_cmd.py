@@ -26,7 +26,7 @@ def merge(
         "--relative-tolerance", help="That fraction of the shortest element edge.")] = 1e-3,
     file_format: FormatOpt = None,
     output_format: Annotated[str | None, typer.Option(
-        "--output-format", help="meshio format name of the output; overrides its extension.")
+        "--output-format", help="Format name of the output; overrides its extension.")
     ] = None,
     as_json: JsonOpt = False,
 ) -> None:

@@ -233,11 +233,19 @@ def renumber_text(r: RenumberResult) -> str:
         cards = ", ".join(f"{k} {v}" for k, v in r.deck["changed_cards"].items())
         lines.append(f"deck lines rewritten (node ids only): {cards}")
         lines += [f"note: {note}" for note in r.deck["notes"]]
-    lines.append(f"written: {r.output} ({r.output_format})")
+    lines += [f"written as {_kind_text(r.output_kind)}: {note}" for note in r.output_notes]
+    lines.append(f"written: {r.output} ({_kind_text(r.output_kind) or r.output_format})")
     lines.append(f"node map (old -> new, 1-based): {r.node_map}")
     if r.dof_map is not None:
         lines.append(f"DOF map (equation of every DOF): {r.dof_map}")
     return "\n".join(lines)
+
+
+def _kind_text(kind: dict[str, str | None] | None) -> str:
+    """``gmsh 4.1 binary``: the kind of file written, in words ('' when none)."""
+    from bandwise.formats.registry import FileKind
+
+    return "" if kind is None else FileKind(**kind).describe()
 
 
 def merge_text(m: MergeOutcome) -> str:
@@ -259,5 +267,6 @@ def merge_text(m: MergeOutcome) -> str:
         shown = ", ".join(str(labels[r]) for r in result.refused[:LISTED_PAIRS])
         lines.append(f"refused {result.refused.size} nodes left unmerged: two of them belong "
                      f"to one element, merging would collapse it ({shown})")
-    lines.append(f"wrote   {m.output} ({m.output_format})")
+    lines += [f"note    written as {_kind_text(m.output_kind)}: {n}" for n in m.output_notes]
+    lines.append(f"wrote   {m.output} ({_kind_text(m.output_kind) or m.output_format})")
     return "\n".join(lines)

@@ -41,7 +41,7 @@ def renumber(
         help="Sloan priority weights (distance, degree); default 2,1.")] = None,
     file_format: FormatOpt = None,
     output_format: Annotated[str | None, typer.Option(
-        "--output-format", help="meshio format name of OUT; default: the input's format when "
+        "--output-format", help="Format name of OUT; default: the input's format when "
                                 "the extensions agree, else from OUT's extension.")] = None,
     dofs_per_node: DofsOpt = None,
     physics: PhysicsOpt = None,

@@ -32,13 +32,11 @@ from .deck import Deck, DeckElements, NodeRef, new_ids
 from .keyword_deck import parse_keyword_deck, read_keyword_deck
 from .rewrite import DeckRewrite, renumber_deck
 
-#: File extensions of each deck kind.
-DECK_EXTENSIONS = {".inp": "keyword", ".bdf": "bulk", ".nas": "bulk", ".fem": "bulk"}
-#: meshio format names that correspond to a deck kind.
+#: Registry format names that correspond to a deck kind (their extensions are the registry's).
 DECK_FORMATS = {"abaqus": "keyword", "nastran": "bulk"}
 
 __all__ = [
-    "DECK_EXTENSIONS", "Deck", "DeckElements", "DeckRewrite", "NodeRef", "deck_kind",
+    "DECK_FORMATS", "Deck", "DeckElements", "DeckRewrite", "NodeRef", "deck_kind",
     "deck_links", "deck_supports", "new_ids", "parse_bulk_deck", "parse_keyword_deck",
     "read_deck", "renumber_deck",
 ]
@@ -46,9 +44,12 @@ __all__ = [
 
 def deck_kind(path: str | os.PathLike[str], file_format: str | None = None) -> str | None:
     """``"keyword"``, ``"bulk"`` or None: which deck reader a path (or format name) calls for."""
+    from bandwise.formats.registry import by_extension
+
     if file_format is not None:
         return DECK_FORMATS.get(file_format)
-    return DECK_EXTENSIONS.get(Path(path).suffix.lower())
+    fmt = by_extension(path)
+    return None if fmt is None else DECK_FORMATS.get(fmt.name)
 
 
 def read_deck(path: str | os.PathLike[str], file_format: str | None = None) -> Deck:

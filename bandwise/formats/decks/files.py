@@ -52,16 +52,44 @@ def write_renumbered_deck(deck: Deck, perm: NDArray[np.integer],
 
     Node ids follow :func:`bandwise.formats.decks.new_ids`; the text is written back
     with the bytes it was read with, every line but the node ids unchanged.
+    Before it is renamed into place the written deck is read back with
+    bandwise's deck reader and compared with the renumbered mesh: node
+    positions in id order, cells, node sets.
 
     Raises
     ------
     InputError
         The deck cannot be renumbered in place (see :func:`renumber_deck`).
     MeshWriteError
-        The file cannot be written; an existing ``out`` is left as it was.
+        The file cannot be written, or reads back differently; an existing
+        ``out`` is left as it was.
     """
     result = renumber_deck(deck, new_ids(deck.node_ids, perm))
-    write_bytes_atomic(Path(out), result.text.encode("utf-8", errors="surrogateescape"))
+    expected = deck.to_model().renumbered(perm)
+    out = Path(out)
+
+    def check(part: Path) -> None:
+        from bandwise.core.errors import BandwiseError, MeshWriteError
+        from bandwise.formats.mesh_io import compare
+
+        from . import read_deck
+
+        try:
+            back = read_deck(part, "abaqus" if deck.kind == "keyword" else "nastran").to_model()
+        except BandwiseError as exc:
+            raise MeshWriteError(f"{out}: not written: the renumbered deck cannot be read back: "
+                                 f"{exc}") from None
+        problem = compare(expected, back)
+        if problem is None:
+            for name, idx in expected.point_sets.items():
+                got = back.point_sets.get(name)
+                if got is None or not np.array_equal(np.unique(got), np.unique(idx)):
+                    problem = f"has node set {name!r} on other nodes"
+                    break
+        if problem is not None:
+            raise MeshWriteError(f"{out}: not written: read back, the renumbered deck {problem}")
+
+    write_bytes_atomic(out, result.text.encode("utf-8", errors="surrogateescape"), check)
     return result
 
 
@@ -75,7 +103,7 @@ def read_mesh_or_deck(path: str | os.PathLike[str],
     read through meshio instead, as any other mesh.
     """
     from bandwise.core.errors import BandwiseError
-    from bandwise.formats.meshio_io import read_model
+    from bandwise.formats.mesh_io import read_model
 
     from . import deck_kind, read_deck
 
