@@ -145,8 +145,11 @@ def _split_entities(dims: list[int], physical: list[np.ndarray],
     out = []
     for d, p, g in zip(dims, physical, geometrical):
         g = g.copy()
-        keys = np.unique((g.astype(np.int64) << 32) | (p.astype(np.int64) & 0xFFFFFFFF))
-        pairs = np.stack([keys >> 32, (keys & 0xFFFFFFFF).astype(np.int32)], axis=1)
+        if len(g) and (g == g[0]).all() and (p == p[0]).all():   # the usual block: one pair
+            pairs = np.array([[g[0], p[0]]], dtype=np.int64)
+        else:
+            keys = np.unique((g.astype(np.int64) << 32) | (p.astype(np.int64) & 0xFFFFFFFF))
+            pairs = np.stack([keys >> 32, (keys & 0xFFFFFFFF).astype(np.int32)], axis=1)
         for geom, phys in pairs.tolist():
             first = seen.setdefault((d, geom), phys)
             if first == phys:
@@ -257,11 +260,14 @@ def _write_entities(fh: BinaryIO, model: Model, mesh: Any, layout: GmshLayout,
     entities: dict[tuple[int, int], dict[str, Any]] = {}
     for b, p, g in zip(mesh.cells, mesh.cell_data[GMSH_PHYSICAL], mesh.cell_data[GMSH_GEOMETRICAL]):
         key = (b.dim, int(g[0]))
-        ent = entities.setdefault(key, {"phys": [], "nodes": []})
+        ent = entities.setdefault(key, {"phys": [], "boxes": []})
         if int(p[0]) and int(p[0]) not in ent["phys"]:
             ent["phys"].append(int(p[0]))
-        ent["nodes"].append(np.unique(b.data))
-    entities.setdefault(node_entity, {"phys": [], "nodes": [np.arange(len(points))]})
+        used = np.zeros(len(points), dtype=bool)
+        used[np.asarray(b.data).ravel()] = True
+        ent["boxes"].append((points[used].min(axis=0), points[used].max(axis=0)))
+    whole = (points.min(axis=0), points.max(axis=0)) if len(points) else (np.zeros(3),) * 2
+    entities.setdefault(node_entity, {"phys": [], "boxes": []})["boxes"].append(whole)
     bounding = model.field_data.get(BOUNDING) or {}
     counts = np.zeros(4, dtype=np.int64)
     for d, _ in entities:
@@ -270,9 +276,8 @@ def _write_entities(fh: BinaryIO, model: Model, mesh: Any, layout: GmshLayout,
     _numbers(fh, counts, _C_SIZE_T, binary, end="\n")
     for (d, tag) in sorted(entities):
         ent = entities[(d, tag)]
-        nodes = np.unique(np.concatenate(ent["nodes"]))
-        box = points[nodes] if nodes.size else np.zeros((1, 3))
-        lo, hi = box.min(axis=0), box.max(axis=0)
+        lo = np.min([b[0] for b in ent["boxes"]], axis=0)
+        hi = np.max([b[1] for b in ent["boxes"]], axis=0)
         phys = ent["phys"] + layout.extra.get((d, tag), [])
         _numbers(fh, [tag], _C_INT, binary)
         _numbers(fh, lo if d == 0 else np.concatenate([lo, hi]), _C_DOUBLE, binary)

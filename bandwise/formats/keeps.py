@@ -19,7 +19,7 @@ import dataclasses
 
 import numpy as np
 
-from bandwise.core.model import Model
+from bandwise.core.model import CellBlock, Model
 
 from .gmsh_writer import BOUNDING, data_fields, gmsh_layout, own, physical_names, set_losses
 from .registry import CELL_SET_FIELD, FORMATS, NO, NODE_SET_FIELD, YES
@@ -53,6 +53,10 @@ def losses(model: Model, file_format: str) -> list[str]:
     if file_format in _GMSH:
         _, _, refused = data_fields(model)
         out += refused
+    elif file_format in SETS_AS_FIELDS:
+        out += [f"{kind} {name!r}: a VTK file holds one value or one row of values per "
+                f"{'node' if kind == 'nodal field' else 'element'}, not a table"
+                for kind, name in _tables(model)]
     if point_fields and holds.point_fields != YES:
         out.append(f"nodal fields {_listed(point_fields)}: {holds.point_fields}")
     if cell_fields and holds.cell_fields != YES:
@@ -98,14 +102,17 @@ def _gmsh_metadata_losses(model: Model, file_format: str) -> list[str]:
             and len(np.unique(np.asarray(dim_tags), axis=0)) > 1:
         out.append("node entities (gmsh:dim_tags): every node is written in one entity block, "
                    "in the new order, so that its place in the file is its number")
+    points_kept = FORMATS[file_format].holds.point_fields == YES
+    if dim_tags is not None and (file_format == "gmsh22" or not points_kept):
+        out.append("node entities (gmsh:dim_tags): lost")
     if BOUNDING in model.field_data and file_format != "gmsh":
         out.append("gmsh bounding entities: lost")
     return out
 
 
-def _listed(names: list[str], most: int = 6) -> str:
-    shown = ", ".join(repr(n) for n in names[:most])
-    return shown + (f" and {len(names) - most} more" if len(names) > most else "")
+def _listed(names: list[str]) -> str:
+    """Every name, quoted: the report names each thing lost."""
+    return ", ".join(repr(n) for n in names)
 
 
 def kept_set_names(model: Model, file_format: str, lost: tuple[str, ...] | list[str] = ()
@@ -136,23 +143,81 @@ def prepared_for(model: Model, file_format: str) -> Model:
     """
     if file_format in SETS_AS_FIELDS:
         return _sets_as_fields(model)
+    if file_format in ONE_BLOCK_PER_TYPE:
+        return one_block_per_type(model)
     return model
 
 
+#: Formats that hold one cell block per cell type (MED: one section per type).
+ONE_BLOCK_PER_TYPE = frozenset({"med"})
+
+
+def one_block_per_type(model: Model) -> Model:
+    """The model with the cell blocks of each type joined (in order of first appearance).
+
+    Cells keep their order within their type; cell fields and cell sets follow them.
+    """
+    types = list(dict.fromkeys(b.type for b in model.cells))
+    if len(types) == len(model.cells) or any(b.data.dtype == object for b in model.cells):
+        return model
+    groups = {t: [k for k, b in enumerate(model.cells) if b.type == t] for t in types}
+    offsets = {}
+    for t, ks in groups.items():
+        start = 0
+        for k in ks:
+            offsets[k] = start
+            start += len(model.cells[k])
+    cells = [CellBlock(t, np.concatenate([model.cells[k].data for k in ks]))
+             for t, ks in groups.items()]
+    cell_data = {name: [np.concatenate([np.asarray(arrays[k]) for k in ks])
+                        for ks in groups.values()]
+                 for name, arrays in model.cell_data.items()}
+    cell_sets = {name: [np.concatenate([np.asarray(arrays[k], dtype=np.int64) + offsets[k]
+                                        for k in ks if k < len(arrays)] or
+                                       [np.zeros(0, np.int64)])
+                        for ks in groups.values()]
+                 for name, arrays in model.cell_sets.items() if isinstance(arrays, list)}
+    return dataclasses.replace(model, cells=cells, cell_data=cell_data, cell_sets=cell_sets)
+
+
+def _tables(model: Model) -> list[tuple[str, str]]:
+    """Fields with more than one dimension per node or element (per-element-node tables)."""
+    out = [("nodal field", k) for k, v in model.point_data.items() if np.ndim(v) > 2]
+    out += [("element field", k) for k, arrays in model.cell_data.items()
+            if any(np.ndim(a) > 2 for a in arrays)]
+    return out
+
+
 def _sets_as_fields(model: Model) -> Model:
-    point_data = dict(model.point_data)
+    tables = {name for _, name in _tables(model)}
+    point_data = {k: v for k, v in model.point_data.items() if k not in tables}
     for name, idx in model.point_sets.items():
         flag = np.zeros(model.n_nodes, dtype=np.uint8)
         flag[np.asarray(idx, dtype=np.int64)] = 1
         point_data[NODE_SET_FIELD + name] = flag
-    cell_data = dict(model.cell_data)
+    cell_data = {k: v for k, v in model.cell_data.items() if k not in tables}
     for name in own(model.cell_sets):
         flags = [np.zeros(len(b), dtype=np.uint8) for b in model.cells]
         for flag, idx in zip(flags, model.cell_sets[name]):
             flag[np.asarray(idx, dtype=np.int64)] = 1
         cell_data[CELL_SET_FIELD + name] = flags
     return dataclasses.replace(model, point_data=point_data, cell_data=cell_data,
-                               point_sets={}, cell_sets={})
+                               point_sets={}, cell_sets={}, field_data=_arrays_only(model))
+
+
+def _arrays_only(model: Model) -> dict:
+    """The metadata entries that are plain arrays (a VTK file's field data holds no others)."""
+    out = {}
+    for name, value in model.field_data.items():
+        if isinstance(value, dict):
+            continue
+        try:
+            arr = np.asarray(value)
+        except ValueError:
+            continue
+        if arr.dtype != object:
+            out[name] = arr
+    return out
 
 
 def sets_from_fields(model: Model) -> Model:

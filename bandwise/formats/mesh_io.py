@@ -188,9 +188,6 @@ def _check_holds(model: Model, fmt: Format, path: Path) -> None:
         raise MeshWriteError(f"{path}: bandwise does not know the node order of "
                              f"{', '.join(unknown)} cells in {fmt.label} files; write another "
                              "format")
-    if fmt.name == "flac3d" and model.cell_sets and {b.dimension for b in model.cells} > {3}:
-        raise MeshWriteError(f"{path}: meshio's FLAC3D writer cannot write element sets of a "
-                             "mesh with both zones and faces; write another format")
 
 
 def write_model(model: Model, path: str | os.PathLike[str], file_format: str | None = None, *,
@@ -266,8 +263,8 @@ def _write_file(model: Model, part: Path, fmt: Format, kind: FileKind) -> Model:
     except Exception as exc:  # noqa: BLE001  writers raise any type
         from .meshio_io import failure_text
 
-        raise MeshWriteError(f"{part.name}: cannot write as {fmt.name}: {failure_text(exc)}") \
-            from None
+        raise MeshWriteError(f"{part.name}: cannot write as {fmt.name}: meshio's writer failed "
+                             f"on this mesh: {failure_text(exc, reading=False)}") from None
     return model
 
 

@@ -54,13 +54,13 @@ def _meshio():
     return meshio
 
 
-def failure_text(exc: BaseException) -> str:
+def failure_text(exc: BaseException, reading: bool = True) -> str:
     """A reader's or writer's failure in one line, with the exception's name when it helps."""
     text, name = one_line(exc), type(exc).__name__
     if isinstance(exc, SystemExit):
         return "the file is malformed or not of this format"
     if not text:
-        return f"the file is malformed ({name})"
+        return f"the file is malformed ({name})" if reading else f"no reason given ({name})"
     return f"{text} ({name})" if name != "ReadError" else text
 
 

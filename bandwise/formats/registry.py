@@ -237,7 +237,7 @@ FORMATS: dict[str, Format] = {f.name: f for f in (
            FormatHolds(NO, NO, NO, "kept as zone and face groups (in slot 1)", NO,
                        node_ids="lost: grid points and zones are numbered 1..n"),
            options=Options((), ("ascii", "binary")), sniff=_flac3d_kind,
-           cell_types=_LINEAR_3D | {"triangle", "quad"}, short="flac3d"),
+           cell_types=_LINEAR_3D, short="flac3d"),
     Format("abaqus", "keyword deck via meshio (.inp)", (".inp",), "abaqus",
            FormatHolds(NO, NO, YES, YES, NO), short="keyword deck"),
     Format("nastran", "bulk-data deck via meshio (.bdf)", (".bdf", ".fem", ".nas"), "nastran",
