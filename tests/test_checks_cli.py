@@ -9,7 +9,7 @@ import pytest
 
 from bandwise.core.generate import quad_grid
 from bandwise.core.model import CellBlock, Model
-from bandwise.formats.meshio_io import write_model
+from bandwise.formats import write_model
 
 
 def _plates(gap: float = 0.0) -> Model:

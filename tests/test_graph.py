@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 from bandwise.core.generate import hex_grid, tet_grid
 from bandwise.core.graph import graph_from_cells, graph_from_matrix, node_graph
 from bandwise.core.model import CellBlock, Model
-from bandwise.formats.meshio_io import read_model
+from bandwise.formats import read_model
 
 
 def reference_adjacency(blocks, n):

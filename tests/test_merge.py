@@ -22,7 +22,7 @@ from bandwise.core.generate import quad_grid
 from bandwise.core.graph import node_graph
 from bandwise.core.model import CellBlock, Model
 from bandwise.core.summary import count_parts
-from bandwise.formats.meshio_io import read_model, write_model
+from bandwise.formats import read_model, write_model
 
 
 def two_plates() -> Model:

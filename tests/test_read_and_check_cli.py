@@ -14,7 +14,7 @@ import pytest
 from conftest import MESHES
 
 from bandwise.core.model import CellBlock, Model
-from bandwise.formats.meshio_io import read_model
+from bandwise.formats import read_model
 
 
 def sha(path):

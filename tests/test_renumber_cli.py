@@ -27,8 +27,8 @@ from bandwise.core.generate import quad_grid, scrambled, triangle_grid
 from bandwise.core.graph import NodeGraph, node_graph
 from bandwise.core.metrics import metrics
 from bandwise.core.model import CellBlock, Model
+from bandwise.formats import read_model, write_model
 from bandwise.formats.matrix_io import read_matrix_data
-from bandwise.formats.meshio_io import read_model, write_model
 from bandwise.formats.node_map import node_map_text, read_node_map, write_node_map
 
 CALLS: list[dict] = []

@@ -19,7 +19,7 @@ from bandwise.algorithms.supports import apply_supports, parse_support
 from bandwise.core.dofs import dof_layout
 from bandwise.core.equations import equation_numbering
 from bandwise.core.graph import node_graph
-from bandwise.formats.meshio_io import read_model
+from bandwise.formats import read_model
 from bandwise.formats.node_map import read_node_map
 
 

@@ -568,7 +568,7 @@ def test_arrows_only_at_drawn_nodes_and_few(full_report):
 
 
 def read_model_for_test(name: str):
-    from bandwise.formats.meshio_io import read_model
+    from bandwise.formats import read_model
 
     return read_model(ROOT / "meshes" / name)
 

@@ -22,10 +22,9 @@ import pytest
 import bandwise
 from bandwise.core.errors import MeshWriteError
 from bandwise.core.generate import quad_grid, scrambled
-from bandwise.formats import atomic
+from bandwise.formats import atomic, write_model
 from bandwise.formats.decks import read_deck
 from bandwise.formats.decks.files import write_renumbered_deck
-from bandwise.formats.meshio_io import write_model
 from bandwise.formats.node_map import write_node_map
 
 PACKAGE = Path(bandwise.__file__).resolve().parent

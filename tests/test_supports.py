@@ -23,7 +23,7 @@ from bandwise.algorithms.supports import (
 from bandwise.core.dofs import dof_layout
 from bandwise.core.errors import InputError
 from bandwise.core.generate import hex_grid, quad_grid
-from bandwise.formats.meshio_io import read_model
+from bandwise.formats import read_model
 
 
 def _held(model, texts, **opts):
@@ -186,7 +186,7 @@ def test_gmsh41_cell_sets_and_abaqus_node_sets() -> None:
 
 def _write_plate(tmp_path):
     """A small plane plate (the gusset of our demo, coarse) as a gmsh file."""
-    from bandwise.formats.meshio_io import write_model
+    from bandwise.formats import write_model
 
     model = quad_grid(5, 3, 10.0, 10.0)
     path = tmp_path / "plate.msh"

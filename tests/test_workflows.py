@@ -18,7 +18,7 @@ from conftest import ROOT
 
 import bandwise
 from bandwise.core.generate import hex_grid
-from bandwise.formats.meshio_io import write_model
+from bandwise.formats import write_model
 
 
 @pytest.fixture(scope="module")
