@@ -28,18 +28,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-MEMORY = """
-def _status(key):
-    for line in open("/proc/self/status"):
-        if line.startswith(key):
-            return int(line.split()[1]) * 1024
-def reset_peak():
-    with open("/proc/self/clear_refs", "w") as fh:
-        fh.write("5")
-    return _status("VmRSS")
-def peak():
-    return _status("VmHWM")
-"""
+from bench import MEMORY  # noqa: E402  the peak-memory probe of scripts/bench.py
 
 SETUP = MEMORY + """
 import json, sys, time
