@@ -30,7 +30,7 @@ from bandwise.algorithms.checks import CheckOptions, run_checks
 from bandwise.algorithms.checks.findings import Finding
 from bandwise.algorithms.checks.verdict import Verdict, check_fail_on, decide_verdict, failing
 from bandwise.algorithms.modeshape import free_motion
-from bandwise.algorithms.orderings.compare import Comparison, compare_orderings
+from bandwise.algorithms.orderings.compare import Comparison
 from bandwise.algorithms.supports import Support
 from bandwise.algorithms.topology import face_connected_blocks, facet_table_in_background
 from bandwise.core.dofs import DofLayout, dof_layout
@@ -50,7 +50,9 @@ from bandwise.formats.matrix_io import (
 )
 
 from .deck_inputs import DeckInputs, deck_inputs
+from .next_steps import NextStep, next_steps
 from .supports import SupportAnalysis, analyse_supports, merged_findings, support_list
+from .timing import ComparisonTime, timed_comparison
 
 
 @dataclass(frozen=True)
@@ -83,6 +85,11 @@ class CheckResult:
         With orderings compared: the equations numbered in the kept order.
     model, graph, layout
         What the figures were measured on, kept for a report (not shown).
+    next_steps
+        What to do before a static run (:mod:`bandwise.workflows.next_steps`):
+        merge a seam, hold the suggested DOFs, correct the mesh.
+    comparison_time
+        Wall time of the comparison of orderings, compilation included.
     """
 
     file: str
@@ -99,6 +106,8 @@ class CheckResult:
     model: Model | None = field(default=None, repr=False, compare=False)
     graph: NodeGraph | None = field(default=None, repr=False, compare=False)
     layout: DofLayout | int = field(default=1, repr=False, compare=False)
+    next_steps: tuple[NextStep, ...] = ()
+    comparison_time: ComparisonTime | None = field(default=None, compare=False)
 
     def __repr__(self) -> str:
         s = self.summary
@@ -118,10 +127,13 @@ class CheckResult:
             out.update(self.supports.to_dict())
         out["verdict"] = self.verdict.word
         out["verdict_reason"] = self.verdict.reason
+        out["next_steps"] = [n.to_dict() for n in self.next_steps]
         if self.findings is not None:
             out["findings"] = [f.to_dict() for f in self.findings]
         if self.comparison is not None:
             out["comparison"] = self.comparison.to_dict()
+        if self.comparison_time is not None:
+            out["comparison_time"] = self.comparison_time.to_dict()
         return out
 
 
@@ -226,16 +238,19 @@ def analyse_model(model: Model, extra: DeckInputs, deck: Deck | None, file: str,
                                           table=table), held)
     verdict = decide_verdict(findings, fail_on, supports_given=held.given,
                              free_modes=held.free_modes)
-    comparison = kept = None
+    comparison = kept = timing = None
     if compare is not None and compare != "none":
-        comparison = compare_orderings(graph, compare, objective, layout, progress=progress)
+        comparison, timing = timed_comparison(graph, compare, objective, layout,
+                                              progress=progress)
         kept = equation_numbering(layout, held.supports.fixed, comparison.best.perm, graph)
     motion = None
     if mode_shape and held.given and held.free_modes:
         with step(progress, "drawing a free motion"):
             motion = free_motion(model, layout, held.supports, held.free_modes)
     return CheckResult(file, "mesh", summary, verdict, findings, fail_on, held, comparison,
-                       motion, kept, model, graph, layout)
+                       motion, kept, model, graph, layout,
+                       next_steps=next_steps(file, findings, held, fail_on, options),
+                       comparison_time=timing)
 
 
 def _check_matrix(path: Path, fail_on: str, compare: str | None, objective: str,
@@ -252,12 +267,12 @@ def analyse_matrix(data: MatrixData, graph: NodeGraph, *, fail_on: str = "error"
                    progress: Progress | None = None) -> CheckResult:
     """The analysis of a matrix already read: its figures (and orderings, if asked)."""
     path = data.source
-    comparison = None
+    comparison = timing = None
     if compare is not None and compare != "none":
-        comparison = compare_orderings(graph, compare, objective, 1, progress=progress)
+        comparison, timing = timed_comparison(graph, compare, objective, 1, progress=progress)
     return CheckResult(str(path), "matrix", summarise_matrix(data),
                        decide_verdict(None, fail_on), None, fail_on, None, comparison,
-                       graph=graph, layout=1)
+                       graph=graph, layout=1, comparison_time=timing)
 
 
 def check_files(paths: Iterable[str | os.PathLike[str]], **options: Any

@@ -26,7 +26,7 @@ from numpy.typing import NDArray
 
 from bandwise import __version__
 from bandwise.algorithms.checks import CheckOptions
-from bandwise.algorithms.orderings.compare import OBJECTIVES, Comparison, compare_orderings
+from bandwise.algorithms.orderings.compare import OBJECTIVES, Comparison
 from bandwise.algorithms.orderings.frontal import (
     ElementReordering,
     frontal_reordering,
@@ -54,6 +54,7 @@ from bandwise.formats.node_map import write_node_map
 from .check import CheckResult, analyse_matrix, analyse_model
 from .deck_inputs import DeckInputs, deck_inputs, deck_support_set
 from .supports import RenumberedEquations, renumbered_equations, support_list
+from .timing import ComparisonTime, timed_comparison
 
 
 @dataclass(frozen=True)
@@ -90,6 +91,9 @@ class RenumberResult:
     check
         The checks, supports and zero-energy modes of the job, when asked for
         (``analyse=True``: what a report of the run shows).
+    comparison_time
+        Wall time of the comparison of orderings, compilation included (the
+        per-method ``seconds`` of :attr:`comparison` leave compilation out).
     """
 
     input: str
@@ -110,6 +114,7 @@ class RenumberResult:
     model: Model | None = field(default=None, repr=False, compare=False)
     graph: NodeGraph | None = field(default=None, repr=False, compare=False)
     layout: DofLayout | int = field(default=1, repr=False, compare=False)
+    comparison_time: ComparisonTime | None = field(default=None, compare=False)
 
     def __repr__(self) -> str:
         best = self.comparison.best
@@ -136,6 +141,8 @@ class RenumberResult:
             "level": self.level,
             "options": self.options,
             "comparison": self.comparison.to_dict(),
+            "comparison_time": (None if self.comparison_time is None
+                                else self.comparison_time.to_dict()),
             "element_order": None if self.element_order is None else self.element_order.to_dict(),
             "losses": list(self.losses),
             "deck": self.deck,
@@ -272,7 +279,7 @@ def _renumber_matrix(source: Path, out: Path, node_map: Path, methods: str, obje
     if data.n_rows < 2:
         raise InputError(f"{source}: the matrix has {data.n_rows} row: nothing to renumber")
     graph = graph_from_matrix(data.matrix)
-    comp = compare_orderings(graph, methods, objective, 1, options, progress)
+    comp, timing = timed_comparison(graph, methods, objective, 1, options, progress)
     perm = comp.best.perm
     with step(progress, "writing the matrix"):
         write_matrix_market(out, data.matrix, perm, field=data.field,
@@ -280,7 +287,8 @@ def _renumber_matrix(source: Path, out: Path, node_map: Path, methods: str, obje
     write_node_map(node_map, perm)
     check = analyse_matrix(data, graph, fail_on=fail_on, progress=progress) if analyse else None
     return RenumberResult(str(source), str(out), "matrix market", str(node_map),
-                          "matrix rows", options, comp, check=check, graph=graph, layout=1)
+                          "matrix rows", options, comp, check=check, graph=graph, layout=1,
+                          comparison_time=timing)
 
 
 def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, objective: str,
@@ -309,7 +317,7 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     fmt = _output_format(source, out, model.file_format, output_format)
     # what the output will be and lose, decided (or refused) before the orderings run
     plan: OutputPlan | None = None if deck is not None else plan_output(model, out, fmt)
-    comp = compare_orderings(graph, methods, objective, layout, options, progress)
+    comp, timing = timed_comparison(graph, methods, objective, layout, options, progress)
     perm = comp.best.perm
     file_supports = None if deck is None else deck_support_set(deck, layout)
     with step(progress, "numbering equations"):
@@ -346,4 +354,4 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
                           None if dof_map is None else str(dof_map), check,
                           None if plan is None else plan.kind.to_dict(),
                           () if plan is None else plan.notes,
-                          model, graph, layout)
+                          model, graph, layout, comparison_time=timing)
