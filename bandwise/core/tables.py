@@ -24,6 +24,16 @@ def human_count(n: float) -> str:
     return f"{n:.3g}"
 
 
+def human_seconds(seconds: float) -> str:
+    """A duration as a reader takes it in: ``0.4 ms``, ``12.3 ms``, ``4.56 s``, ``2 min 05 s``."""
+    if seconds < 1:
+        return f"{seconds * 1000:.1f} ms"
+    if seconds < 60:
+        return f"{seconds:.2f} s"
+    minutes, rest = divmod(round(seconds), 60)
+    return f"{minutes} min {rest:02d} s"
+
+
 def render_table(rows: Sequence[Sequence[object]], header: Sequence[str] | None = None,
                  align: str | None = None) -> str:
     """Render rows as an aligned text table.

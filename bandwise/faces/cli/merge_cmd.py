@@ -11,7 +11,7 @@ from bandwise.core.progress import StderrProgress
 from bandwise.workflows import merge_file
 
 from . import CAUTION, EXIT_FINDINGS, FormatOpt, JsonOpt, app, emit_json, guarded
-from .render import merge_text
+from .render import format_note, merge_text
 
 
 @app.command()
@@ -39,7 +39,7 @@ def merge(
                         file_format=file_format, output_format=output_format,
                         progress=StderrProgress())
     for note in result.losses:
-        typer.echo(f"bandwise: note: {out.name} will not keep {note}", err=True)
+        typer.echo(f"bandwise: note: {format_note(result.output, note)}", err=True)
     if as_json:
         emit_json(result.to_dict())
     else:

@@ -8,15 +8,18 @@ from __future__ import annotations
 
 import textwrap
 from collections.abc import Sequence
+from pathlib import Path
 
 from bandwise.algorithms.checks.findings import Finding
 from bandwise.algorithms.orderings.compare import Comparison
 from bandwise.algorithms.orderings.frontal import ElementReordering
 from bandwise.core.summary import MeshSummary
-from bandwise.core.tables import human_bytes, human_count, render_table
+from bandwise.core.tables import human_bytes, human_count, human_seconds, render_table
 from bandwise.formats.matrix_io import matrix_facts
 from bandwise.workflows import CheckResult, FileFailure, MergeOutcome, RenumberResult
+from bandwise.workflows.next_steps import NextStep
 from bandwise.workflows.supports import RenumberedEquations, SupportAnalysis
+from bandwise.workflows.timing import ComparisonTime
 
 #: Modes listed per part, and parts listed, in the text output.
 TEXT_MODES, TEXT_PARTS = 12, 10
@@ -149,6 +152,18 @@ def check_text(result: CheckResult) -> str:
     lines = [summary_text(result.summary), "", findings_text(result.findings or ())]
     if result.supports is not None:
         lines += ["", supports_text(result.supports)]
+    if result.next_steps:
+        lines += ["", next_steps_text(result.next_steps)]
+    return "\n".join(lines)
+
+
+def next_steps_text(steps: Sequence[NextStep], width: int = 72) -> str:
+    """The steps to take before a static run, numbered, each command on a line of its own."""
+    lines = ["What to do next"]
+    for k, s in enumerate(steps, start=1):
+        lines += textwrap.wrap(s.advice, width, initial_indent=f"{k}. ", subsequent_indent="   ")
+        if s.command:
+            lines.append(f"   {s.command}")
     return "\n".join(lines)
 
 
@@ -170,11 +185,18 @@ def equations_text(eq: RenumberedEquations) -> str:
         rows, header=("figure", "before", "after"), align="lrr")])
 
 
-def comparison_text(comp: Comparison, level: str) -> str:
-    """The table of every method tried, the chosen one marked with ``*``."""
+def comparison_text(comp: Comparison, level: str, timing: ComparisonTime | None = None) -> str:
+    """The table of every method tried, the chosen one marked with ``*``.
+
+    With ``timing``, each method's wall time (first-call compilation and
+    measuring included) stands beside its ordering time, and the comparison's
+    whole wall time is said below the table.
+    """
     fill_shown = any(r.fill is not None for r in comp.rows)
+    walls = {} if timing is None else timing.by_method
     header = ["", "method", "bandwidth", "profile", "max wavefront", "RMS wavefront", "banded",
-              "skyline"] + (["Cholesky nnz"] if fill_shown else []) + ["time", "vs original"]
+              "skyline"] + (["Cholesky nnz"] if fill_shown else []) + ["time"] \
+        + (["wall"] if walls else []) + ["vs original"]
     rows = []
     for r in comp.rows:
         mark = "*" if r is comp.best else ""
@@ -186,14 +208,20 @@ def comparison_text(comp: Comparison, level: str) -> str:
                f"{d.rms_wavefront:,.1f}", human_bytes(d.banded_bytes), human_bytes(d.skyline_bytes)]
         if fill_shown:
             row.append("-" if r.fill is None else human_count(r.fill))
-        row += [duration(r.seconds),
-                "-" if r.improvement is None else f"{r.improvement:.2f}x"]
+        row.append(human_seconds(r.seconds))
+        if walls:
+            row.append(human_seconds(walls[r.method]) if r.method in walls else "-")
+        row.append("-" if r.improvement is None else f"{r.improvement:.2f}x")
         if r.error:
             row.append(f"({r.error})")
         rows.append(row)
     title = f"Orderings tried ({level}; objective: {comp.objective}; * = chosen)"
     lines = [title,
              render_table(rows, header=header, align="ll" + "r" * (len(header) - 2))]
+    if timing is not None:
+        lines.append(f"time: the ordering alone, once compiled; wall: what the method cost "
+                     f"here, first-call compilation and measuring included. The comparison "
+                     f"took {human_seconds(timing.seconds)} in all.")
     if not fill_shown:
         lines.append(f"Cholesky fill {comp.fill_note}")
     for name, why in comp.skipped.items():
@@ -201,9 +229,9 @@ def comparison_text(comp: Comparison, level: str) -> str:
     return "\n".join(lines)
 
 
-def duration(seconds: float) -> str:
-    """A time as ``12.3 ms`` or ``4.56 s``."""
-    return f"{seconds * 1000:.1f} ms" if seconds < 1 else f"{seconds:.2f} s"
+def format_note(output: str, note: str) -> str:
+    """One note on what the output format keeps, as a sentence naming the file written."""
+    return f"writing {Path(output).name}: {note}"
 
 
 def frontal_text(front: ElementReordering) -> str:
@@ -218,7 +246,7 @@ def frontal_text(front: ElementReordering) -> str:
 def renumber_text(r: RenumberResult) -> str:
     """Everything ``renumber`` prints: the comparison, the choice, the equations, the files."""
     comp = r.comparison
-    lines = [comparison_text(comp, r.level)]
+    lines = [comparison_text(comp, r.level, r.comparison_time)]
     if r.element_order is not None:
         lines.append(frontal_text(r.element_order))
     best = comp.best
@@ -228,7 +256,7 @@ def renumber_text(r: RenumberResult) -> str:
     lines += ["", f"chosen: {best.method} ({comp.objective} {shown}{gain})"]
     if r.equations is not None:
         lines.append(equations_text(r.equations))
-    lines += [f"not kept by the output format: {lost}" for lost in r.losses]
+    lines += [format_note(r.output, lost) for lost in r.losses]
     if r.deck:
         cards = ", ".join(f"{k} {v}" for k, v in r.deck["changed_cards"].items())
         lines.append(f"deck lines rewritten (node ids only): {cards}")

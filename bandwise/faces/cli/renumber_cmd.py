@@ -16,7 +16,7 @@ from bandwise.workflows import renumber_file
 
 from . import CAUTION, DofsOpt, FormatOpt, JsonOpt, PhysicsOpt, app, emit_json, guarded
 from .options import DofMapOpt, SupportFileOpt, SupportOpt
-from .render import renumber_text
+from .render import format_note, renumber_text
 from .report_cmd import ReportOpt, check_report_option, write_report_option
 
 
@@ -68,7 +68,7 @@ def renumber(
         dofs_per_node=dofs_per_node, physics=physics, replace_input=replace_input,
         dof_map=dof_map, analyse=report_dir is not None, progress=StderrProgress())
     for note in result.losses:
-        typer.echo(f"bandwise: note: {Path(result.output).name} will not keep {note}", err=True)
+        typer.echo(f"bandwise: note: {format_note(result.output, note)}", err=True)
     write_report_option(report_dir, result)
     if as_json:
         emit_json(result.to_dict())
