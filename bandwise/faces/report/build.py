@@ -151,11 +151,15 @@ def mesh_figure(inputs: ReportInputs) -> Figure:
     assert inputs.model is not None
     view = mesh_view(inputs.model, inputs.graph)
     arrows = visible_arrows(view, mode_arrows(inputs))
-    ax = fg.mesh_axes(view, {**finding_marks(inputs), **mode_marks(inputs)}, arrows)
+    found, moving = finding_marks(inputs), mode_marks(inputs)
+    ax = fg.mesh_axes(view, {**found, **moving}, arrows)
     shown = (f"{len(view.facets):,} of {view.facets_total:,} facets drawn (evenly spread "
              "subset)" if view.is_subsampled else "every facet drawn")
-    caption = (f"The mesh, {view.n_parts} connected part(s) coloured; marked: the nodes "
-               f"the findings name and those free modes move most; {shown}.")
+    marked = [what for what, group in (("the nodes the findings name", found),
+                                       ("the nodes free modes move most", moving))
+              if any(nodes.size for nodes in group.values())]
+    caption = (f"The mesh, {view.n_parts} connected part(s) coloured"
+               + (f"; marked: {' and '.join(marked)}" if marked else "") + f"; {shown}.")
     if view.axis_names[0].startswith("view"):
         caption += " Oblique view; outer faces of solids only."
     if arrows is not None:
@@ -213,7 +217,11 @@ def curve_figures(inputs: ReportInputs) -> list[Figure]:
 
 
 def comparison_figure(inputs: ReportInputs) -> Figure | None:
-    """Bar chart of the orderings compared, DOF level, relative to the original numbering."""
+    """Bar chart of the orderings compared, DOF level: the reduction of each figure.
+
+    The reduction is the page's one ratio (:data:`~.html.CONVENTION`): the
+    original numbering's figure divided by the ordering's.
+    """
     comp = inputs.comparison
     if comp is None:
         return None
@@ -226,13 +234,14 @@ def comparison_figure(inputs: ReportInputs) -> Figure | None:
                        ("max_wavefront", "max front"), ("rms_wavefront", "RMS front"),
                        ("envelope_ops", "envelope\nwork")):
         ref = float(getattr(base.dofs, key))
-        ratios[label] = [float(getattr(r.dofs, key)) / ref if ref else np.nan for r in rows]
+        ratios[label] = [ref / float(getattr(r.dofs, key)) if getattr(r.dofs, key) else np.nan
+                         for r in rows]
     if base.fill and all(r.fill for r in rows):
-        ratios["Cholesky\nnnz(L)"] = [float(r.fill) / base.fill for r in rows]
+        ratios["Cholesky\nnnz(L)"] = [float(base.fill) / r.fill for r in rows]
     ax = fg.comparison_axes([r.method for r in rows], ratios, chosen=comp.best.method)
-    return Figure("orderings.png", "orderings", "Each ordering's figures divided by those "
-                  "of the original numbering (DOF level; below 1 is better); the kept "
-                  "ordering outlined.", fg.png_bytes(ax))
+    return Figure("orderings.png", "orderings", "Reduction of each figure by each ordering "
+                  "(DOF level; the dashed line at 1 is the current numbering, taller bars are "
+                  "smaller matrices); the kept ordering outlined.", fg.png_bytes(ax))
 
 
 def report_figures(inputs: ReportInputs, progress: Progress | None = None) -> list[Figure]:

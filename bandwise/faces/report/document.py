@@ -78,6 +78,9 @@ def not_analysed(inputs: ReportInputs) -> list[str]:
     out = []
     if inputs.model is None:
         out.append("A matrix has no mesh: no mesh checks, no picture of the mesh.")
+        if inputs.values is None:
+            out.append("The matrix values (symmetry, zero modes, pivots) were not checked: "
+                       "only its pattern was sized.")
     elif inputs.findings is None:
         out.append("Mesh checks (orphan and coincident nodes, element quality, weak "
                    "joints) were not run.")
@@ -185,15 +188,20 @@ def report_document(inputs: ReportInputs, figures: list[dict[str, str]] | None =
         "caution": CAUTION,
         "verdict": verdict(inputs).word,
         "verdict_reason": verdict(inputs).reason,
+        "next_steps": [n.to_dict() for n in inputs.next_steps],
         "outputs": [{"what": what, "file": str(path)} for what, path in inputs.outputs],
+        "output_notes": list(inputs.output_notes),
         "mesh": plain(s.to_dict()),
         "findings": (None if inputs.findings is None
                      else [_as_dict(f) for f in inputs.findings]),
         "renumbering": renumbering(inputs),
         "comparison": None if inputs.comparison is None else comparison_data(inputs.comparison),
+        "comparison_time": (None if inputs.comparison_time is None
+                            else plain(inputs.comparison_time.to_dict())),
         "supports": supports,
         "modes": None if inputs.modes is None else modes_data(inputs.modes),
         "equations": None if inputs.equations is None else equations_data(inputs),
+        "values": None if inputs.values is None else _as_dict(inputs.values),
         "not_analysed": not_analysed(inputs),
         "figures": list(figures or []),
     }

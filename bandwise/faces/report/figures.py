@@ -145,6 +145,11 @@ def pattern_axes(image: PatternImage, title: str, ax: Any = None,
     ax.set_facecolor("white")
     if image.bins < image.n:
         cb = ax.figure.colorbar(shown, ax=ax, shrink=0.8)
+        from matplotlib.ticker import FuncFormatter
+
+        plain = FuncFormatter(lambda v, _: f"{v:g}")
+        cb.ax.yaxis.set_major_formatter(plain)
+        cb.ax.yaxis.set_minor_formatter(plain)
         cb.set_label(f"nonzeros per cell ({image.n / image.bins:,.0f} x "
                      f"{image.n / image.bins:,.0f} entries)")
     return ax
@@ -206,15 +211,16 @@ def wavefront_axes(before: NDArray[np.integer], after: NDArray[np.integer] | Non
 @styled
 def comparison_axes(methods: Sequence[str], ratios: Mapping[str, Sequence[float]],
                     chosen: str | None = None, ax: Any = None) -> Any:
-    """Draw each ordering's figures relative to the current numbering, as bars.
+    """Draw the reduction of each figure by each ordering, as bars.
 
     Parameters
     ----------
     methods
         Ordering names, one bar per figure each.
     ratios
-        Figure name (``"bandwidth"`` ...) -> one ratio per method, where 1 is
-        the current numbering; lower is better.
+        Figure name (``"bandwidth"`` ...) -> one reduction per method: the
+        current numbering's figure divided by the ordering's, so 1 is the
+        current numbering and higher is better.
     chosen
         The method kept; its bars get a heavy outline and a mark in the legend.
     """
@@ -236,7 +242,10 @@ def comparison_axes(methods: Sequence[str], ratios: Mapping[str, Sequence[float]
     if positive.size and positive.max() / positive.min() > 20:
         ax.set_yscale("log")
     ax.set_xticks(x, names)
-    ax.set_ylabel("relative to current numbering (1 = same)")
+    from matplotlib.ticker import FuncFormatter
+
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}\u00d7"))
+    ax.set_ylabel("reduction (current / ordering)")
     ax.set_title("Orderings compared")
     ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0))
     return ax

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import datetime as dt
+import os
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -23,6 +24,8 @@ if TYPE_CHECKING:  # the report reads these results; it does not need their modu
     from bandwise.algorithms.supports import SupportSet
     from bandwise.core.equations import EquationNumbering
     from bandwise.workflows import CheckResult, RenumberResult
+    from bandwise.workflows.next_steps import NextStep
+    from bandwise.workflows.timing import ComparisonTime
 
 
 def _now() -> dt.datetime:
@@ -67,6 +70,17 @@ class ReportInputs:
         One free zero-energy motion ``(nodes, translations)`` to draw as arrows.
     outputs
         Files the run wrote, as ``(what, path)``: the renumbered mesh, the maps.
+    output_notes
+        What the renumbered file's format does not keep, one sentence each.
+    next_steps
+        What to do before a static run, as the analysis said
+        (:class:`~bandwise.workflows.next_steps.NextStep`).
+    comparison_time
+        Wall time of the comparison of orderings, compilation included
+        (:class:`~bandwise.workflows.timing.ComparisonTime`).
+    values
+        Checks of a matrix's values, when the analysis made them (anything
+        with ``to_dict()``); shown in a section of their own.
     """
 
     model: Model | None
@@ -85,6 +99,10 @@ class ReportInputs:
     verdict: Verdict | None = None
     motion: tuple[NDArray[np.int64], NDArray[np.float64]] | None = None
     outputs: tuple[tuple[str, str], ...] = ()
+    output_notes: tuple[str, ...] = ()
+    next_steps: tuple[NextStep, ...] = ()
+    comparison_time: ComparisonTime | None = None
+    values: Any = None
 
     @property
     def subject(self) -> str:
@@ -117,10 +135,11 @@ def report_inputs(result: CheckResult | RenumberResult) -> ReportInputs:
 
     if isinstance(result, RenumberResult):
         check = result.check
-        outputs = [("renumbered mesh" if result.model is not None else "renumbered matrix",
-                    result.output), ("node map (old to new)", result.node_map)]
-        if result.dof_map is not None:
-            outputs.append(("DOF map (equation of every DOF)", result.dof_map))
+        written = "renumbered mesh" if result.model is not None else "renumbered matrix"
+        outputs = [(f"{written} ({result.output_format})", os.path.abspath(result.output)),
+                   ("node map (old to new)", os.path.abspath(result.node_map))]
+        if result.dof_map is not None:   # a report travels: every path in full
+            outputs.append(("DOF map (equation of every DOF)", os.path.abspath(result.dof_map)))
         equations = None if result.equations is None else result.equations.after
         held = None if result.equations is None else result.equations.supports
         if check is None:
@@ -131,7 +150,9 @@ def report_inputs(result: CheckResult | RenumberResult) -> ReportInputs:
             findings=check.findings, comparison=result.comparison, supports=held,
             modes=None if check.supports is None else check.supports.analysis,
             equations=equations, fail_on=check.fail_on, verdict=check.verdict,
-            motion=check.motion, outputs=tuple(outputs))
+            motion=check.motion, outputs=tuple(outputs), output_notes=tuple(result.losses),
+            next_steps=check.next_steps, comparison_time=result.comparison_time,
+            values=getattr(check, "values", None))
     sup = result.supports
     equations = result.kept_equations or (None if sup is None else sup.equations)
     return ReportInputs(
@@ -139,5 +160,7 @@ def report_inputs(result: CheckResult | RenumberResult) -> ReportInputs:
         findings=result.findings, comparison=result.comparison,
         supports=None if sup is None else sup.supports,
         modes=None if sup is None else sup.analysis, equations=equations,
-        fail_on=result.fail_on, verdict=result.verdict, motion=result.motion)
+        fail_on=result.fail_on, verdict=result.verdict, motion=result.motion,
+        next_steps=result.next_steps, comparison_time=result.comparison_time,
+        values=getattr(result, "values", None))
 
