@@ -68,3 +68,23 @@ def cli_app():
 
     load_commands()
     return app
+
+
+def seamed_blocks(path: Path, seed: int = 4) -> Path:
+    """A bracket foot meshed as two tetrahedral blocks that were never merged, written to ``path``.
+
+    Block A spans x = 0..25 (6 x 5 x 4 nodes), block B x = 25..45 (5 x 5 x 4 nodes),
+    both with spacing 5: the 20 nodes of B's face x = 25 lie on A's. Merged, the
+    two blocks are the one grid of 10 x 5 x 4 = 200 nodes (by construction).
+    """
+    import numpy as np
+
+    from bandwise.core.generate import scrambled, tet_grid
+    from bandwise.core.model import CellBlock, Model
+    from bandwise.formats.meshio_io import write_model
+
+    a, b = tet_grid(6, 5, 4, h=5.0), tet_grid(5, 5, 4, h=5.0)
+    points = np.concatenate([a.points, b.points + [25.0, 0.0, 0.0]])
+    cells = [CellBlock("tetra", np.concatenate([a.cells[0].data, b.cells[0].data + a.n_nodes]))]
+    write_model(scrambled(Model(points=points, cells=cells), seed=seed), path)
+    return path

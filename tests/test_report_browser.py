@@ -19,7 +19,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import seamed_blocks
 
+import bandwise
 from bandwise.algorithms.checks import run_checks
 from bandwise.algorithms.orderings.compare import compare_orderings
 from bandwise.algorithms.rigid import zero_energy_modes
@@ -29,7 +31,8 @@ from bandwise.core.equations import equation_numbering
 from bandwise.core.generate import scrambled, tet_grid
 from bandwise.core.graph import node_graph
 from bandwise.core.summary import summarise
-from bandwise.faces.report import ReportInputs, write_report
+from bandwise.faces.report import ReportInputs, report_inputs, write_report
+from bandwise.faces.report.html import CONVENTION
 
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
          "--disable-background-networking", "--disable-component-update", "--disable-sync"]
@@ -140,3 +143,67 @@ def test_screenshot_shows_the_images(chromium, report, tmp_path):
     assert changed.mean() > 0.05, changed.mean()
     rows = np.flatnonzero(changed.any(axis=1))
     assert rows.size > 1000, rows.size                           # figures down the page
+
+
+@pytest.fixture(scope="module")
+def renumbered(tmp_path_factory):
+    """A renumbering's report: two unmerged blocks, no supports, the maps written."""
+    folder = tmp_path_factory.mktemp("renumbered")
+    mesh = seamed_blocks(folder / "foot.vtu")
+    result = bandwise.renumber_file(mesh, folder / "foot-rn.vtu", method="rcm,sloan",
+                                    dof_map=folder / "foot-dofs.csv", analyse=True)
+    return result, write_report(folder / "rep", report_inputs(result)).html
+
+
+def _text(html: str) -> str:
+    """Visible text of a fragment of the DOM, one space between words."""
+    import html as html_lib
+
+    return " ".join(html_lib.unescape(re.sub(r"<[^>]+>", " ", html)).split())
+
+
+def test_dom_names_files_next_steps_one_ratio_and_wall_time(chromium, renumbered, tmp_path):
+    result, page = renumbered
+    dom = _run(chromium, tmp_path / "profile", "--dump-dom", page.as_uri()).stdout.decode()
+    top = dom[:dom.index("<section")]                     # above the first section
+    # the files written, by name, near the top
+    files = _text(top[top.index('class="files"'):])
+    for name in ("foot-rn.vtu", "foot-rn.map.csv", "foot-dofs.csv"):
+        assert name in files
+    # the verdict box says what to do next: merge the seam, then the holds to pass
+    box = _text(top[top.index('class="verdict'):top.index('class="files"')])
+    assert "Verdict: problems" in box and "What to do next" in box
+    merge = next(s for s in result.check.next_steps if s.kind == "merge")
+    holds = next(s for s in result.check.next_steps if s.kind == "supports")
+    assert merge.command.startswith("bandwise merge ") and merge.command.endswith(
+        "foot-merged.vtu")
+    assert merge.command in box and holds.command in box
+    assert holds.command.startswith("--support 'node ")
+    # one ratio convention, said once, used in the tables
+    text = _text(dom)
+    assert text.count(CONVENTION) == 1
+    assert "below 1 is better" not in text and "improvement" not in text
+    assert text.count("reduction") >= 3
+    # the wall time, compilation included, beside each ordering's own time
+    wall = result.comparison_time
+    assert "of wall time in all, compiling included" in text
+    assert "wall time, compiling included" in text
+    assert f'<data value="{round(wall.seconds, 6)!r}">' in dom
+    for row in result.comparison.rows:
+        assert f'<data value="{round(wall.by_method[row.method], 6)!r}">' in dom
+        assert wall.by_method[row.method] >= row.seconds
+
+
+def test_screenshot_top_of_a_renumbering_report(chromium, renumbered, tmp_path):
+    """The first screen holds the verdict box and the files written, drawn."""
+    from matplotlib.image import imread
+
+    _, page = renumbered
+    shot = tmp_path / "top.png"
+    _run(chromium, tmp_path / "profile-top", f"--screenshot={shot}", "--window-size=1280,900",
+         page.as_uri())
+    grey = imread(io.BytesIO(shot.read_bytes()), format="png")[..., :3].mean(axis=2)
+    # the verdict box of "problems" is tinted (#f8e7e4, grey ~0.92) and framed in ink
+    tinted = np.abs(grey - grey.dtype.type(0.92)) < 0.02
+    assert tinted.mean() > 0.05
+    assert (grey < 0.2).mean() > 0.005                            # frames and text
