@@ -187,8 +187,10 @@ def test_dom_names_files_next_steps_one_ratio_and_wall_time(chromium, renumbered
     # the wall time, compilation included, beside each ordering's own time
     wall = result.comparison_time
     assert "of wall time in all, compiling included" in text
-    assert "wall time, compiling included" in text
+    assert "loading the orderings before any ran" in text
+    assert "wall time of its step" in text
     assert f'<data value="{round(wall.seconds, 6)!r}">' in dom
+    assert f'<data value="{round(wall.loading_seconds, 6)!r}">' in dom
     for row in result.comparison.rows:
         assert f'<data value="{round(wall.by_method[row.method], 6)!r}">' in dom
         assert wall.by_method[row.method] >= row.seconds

@@ -219,9 +219,11 @@ def comparison_text(comp: Comparison, level: str, timing: ComparisonTime | None 
     lines = [title,
              render_table(rows, header=header, align="ll" + "r" * (len(header) - 2))]
     if timing is not None:
-        lines.append(f"time: the ordering alone, once compiled; wall: what the method cost "
-                     f"here, first-call compilation and measuring included. The comparison "
-                     f"took {human_seconds(timing.seconds)} in all.")
+        lines.append(f"time: the ordering alone, once compiled; wall: what its step cost here, "
+                     f"first-call compilation and measuring included. The comparison took "
+                     f"{human_seconds(timing.seconds)} in all, "
+                     f"{human_seconds(timing.loading_seconds)} of it loading the orderings "
+                     "(compiling their kernels on a first run).")
     if not fill_shown:
         lines.append(f"Cholesky fill {comp.fill_note}")
     for name, why in comp.skipped.items():
