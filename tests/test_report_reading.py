@@ -474,13 +474,23 @@ def test_help_shows_the_support_table_header(runner, cli_app):
 
 
 def test_format_note_reads_as_a_sentence(runner, cli_app, tmp_path):
-    mesh = seamed_blocks(tmp_path / "foot.vtu")
-    result = runner.invoke(cli_app, ["renumber", str(mesh), str(tmp_path / "foot.su2"),
-                                     "--method", "rcm"])
+    from bandwise.core.generate import tet_grid
+    from bandwise.formats.meshio_io import write_model
+
+    model = tet_grid(4, 3, 3)
+    model.point_sets["mount_face"] = np.arange(4)
+    write_model(model, tmp_path / "bracket.vtu")
+    result = runner.invoke(cli_app, ["renumber", str(tmp_path / "bracket.vtu"),
+                                     str(tmp_path / "foot.xdmf"), "--method", "rcm",
+                                     "--report", str(tmp_path / "rep")])
     assert result.exit_code == 0, result.stderr
-    assert ("bandwise: note: writing foot.su2: bandwise has not checked what the su2 format "
-            "keeps") in result.stderr
-    assert "will not keep bandwise" not in result.stderr + result.stdout
+    assert "bandwise: note: writing foot.xdmf: node sets 'mount_face': lost" in result.stderr
+    assert "writing foot.xdmf: node sets 'mount_face': lost" in result.stdout
+    assert "will not keep" not in result.stderr + result.stdout
+    page = (tmp_path / "rep" / "report.html").read_text()
+    files = page[page.index('<div class="files"'):page.index("</div>", page.index(
+        '<div class="files"'))]
+    assert "Format notes on foot.xdmf:" in files and "node sets &#x27;mount_face&#x27;: lost" in files
 
 
 # --------------------------------------------------------------------------- matrices

@@ -71,7 +71,8 @@ class ReportInputs:
     outputs
         Files the run wrote, as ``(what, path)``: the renumbered mesh, the maps.
     output_notes
-        What the renumbered file's format does not keep, one sentence each.
+        What the renumbered file does not keep, and how its kind differs from
+        the input's, one sentence each.
     next_steps
         What to do before a static run, as the analysis said
         (:class:`~bandwise.workflows.next_steps.NextStep`).
@@ -150,7 +151,8 @@ def report_inputs(result: CheckResult | RenumberResult) -> ReportInputs:
             findings=check.findings, comparison=result.comparison, supports=held,
             modes=None if check.supports is None else check.supports.analysis,
             equations=equations, fail_on=check.fail_on, verdict=check.verdict,
-            motion=check.motion, outputs=tuple(outputs), output_notes=tuple(result.losses),
+            motion=check.motion, outputs=tuple(outputs),
+            output_notes=(*result.losses, *getattr(result, "output_notes", ())),
             next_steps=check.next_steps, comparison_time=result.comparison_time,
             values=getattr(check, "values", None))
     sup = result.supports
