@@ -43,7 +43,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bandwise.core.graph import NodeGraph, component_labels
-from bandwise.core.metrics import metrics
+from bandwise.core.metrics import _first_columns, metrics
 from bandwise.core.model import check_permutation
 
 from ._parts import _indices32
@@ -198,7 +198,7 @@ def local_exchange(graph: NodeGraph, perm: NDArray[np.integer], passes: int,
     indices = _indices32(graph)
     pos = np.empty(n, dtype=np.int64)
     pos[order] = np.arange(n)
-    first = _firsts(indptr, indices, pos)
+    first = _first_columns(indptr, indices, pos)
     mark = np.zeros(n, dtype=np.int64)
     label = component_labels(graph)[1]
     stamp = 0
@@ -208,14 +208,6 @@ def local_exchange(graph: NodeGraph, perm: NDArray[np.integer], passes: int,
         if gain <= 0 or (seconds is not None and time.perf_counter() - t0 > seconds):
             break
     return order
-
-
-@numba.njit(cache=True, nogil=True)
-def _firsts(indptr, indices, pos):  # pragma: no cover - compiled
-    out = np.empty(pos.size, dtype=np.int64)
-    for v in range(pos.size):
-        out[v] = _first(indptr, indices, pos, v)
-    return out
 
 
 def position_key(graph: NodeGraph, perm: NDArray[np.integer]) -> NDArray[np.float64]:
