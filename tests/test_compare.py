@@ -200,7 +200,8 @@ def test_a_failing_method_is_a_row_not_a_crash(registry):
 def test_auto_tries_what_admits_the_graph(registry):
     comp = compare_orderings(GRAPH, "auto")
     names = [r.method for r in comp.rows]
-    assert names == ["original", "broken", "same", "scipy-rcm", "shuffle"]
+    # with the default effort a small graph's best profile numbering is refined too
+    assert names == ["original", "broken", "same", "scipy-rcm", "shuffle", "refined"]
     assert "tiny-only" in comp.skipped
     small = node_graph(quad_grid(2, 2))
     assert "tiny-only" in [r.method for r in compare_orderings(small, "auto").rows]

@@ -173,16 +173,19 @@ def _breadth_first_part(indptr, indices, deg, low, seen, stamp, order, start, iw
 _breadth_first = part_kernel(_breadth_first_part)
 
 
-def parts_in_order(graph: NodeGraph) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+def parts_in_order(graph: NodeGraph,
+                   sort: bool = True) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
     """The connected parts in the driver's order: ``(nodes, part_ptr)``.
 
     Part ``p`` is ``nodes[part_ptr[p]:part_ptr[p+1]]`` in increasing node
-    number; parts come in increasing order of their least degree (ties: the
-    lowest node of that degree), as every ordering places them.
+    number (with ``sort=False``: breadth first from its start); parts come in
+    increasing order of their least degree (ties: the lowest node of that
+    degree), as every ordering places them.
     """
     order, ptr = each_part(graph, _breadth_first)
-    for p in np.flatnonzero(np.diff(ptr) > 1):
-        order[ptr[p]:ptr[p + 1]].sort()
+    if sort:
+        for p in np.flatnonzero(np.diff(ptr) > 1):
+            order[ptr[p]:ptr[p + 1]].sort()
     return order, ptr
 
 

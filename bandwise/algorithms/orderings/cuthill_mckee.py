@@ -44,7 +44,7 @@ __all__ = ["cuthill_mckee", "reverse_cuthill_mckee"]
 
 #: Parts of at most this many nodes get the wide start search (every node of the
 #: part, most peripheral first, both tie rules, while the budget lasts).
-SMALL_PART = 20_000
+SMALL_PART = 6_000
 #: Node and edge visits the wide search may spend over a whole graph, beyond the two
 #: sweeps every part gets (at most about half a second on this project's machine;
 #: the 77 open test matrices take 3.5 s in all).
@@ -180,10 +180,14 @@ def _cm_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
 _cm_kernel = part_kernel(_cm_part)
 
 
-def _ordered(graph: NodeGraph, reverse: bool) -> NDArray[np.int64]:
-    """(Reverse) Cuthill-McKee of every part through the part driver."""
+def _ordered(graph: NodeGraph, reverse: bool, budget: int = EXTRA_BUDGET) -> NDArray[np.int64]:
+    """(Reverse) Cuthill-McKee of every part through the part driver.
+
+    ``budget``: node and edge visits for the wide search of small parts (0:
+    two searches per part and nothing more, the cheapest banded numbering).
+    """
     iwork = np.empty((4, graph.n + 1), dtype=np.int64)
-    iwork[3, 0] = EXTRA_BUDGET
+    iwork[3, 0] = budget
     return each_part(graph, _cm_kernel, params=(float(reverse),), iwork=iwork)[0]
 
 
