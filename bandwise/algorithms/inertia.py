@@ -22,17 +22,28 @@ How
        against the stiffness of the DOFs themselves, so translations and
        rotations in mixed units, or a soft and a stiff member, do not set a
        false scale.
-    3. Two inertia counts bracket the cut: ``n(s)`` = eigenvalues of ``B``
-       below ``s``, at :data:`LOWER_CUT` and :data:`UPPER_CUT`.  When they
-       agree, no eigenvalue lies between: the zero eigenvalues are separated
-       from the rest by a gap of at least ``UPPER_CUT / LOWER_CUT`` (four
-       decades), and the count is certain.
+    3. The inertia ``n(UPPER_CUT)`` counts the eigenvalues of ``B`` below
+       :data:`UPPER_CUT`.  Subspace iteration with that factor gives Ritz
+       values, which bound those eigenvalues from above (Poincare
+       separation); when all of them are below :data:`LOWER_CUT`, the zero
+       eigenvalues are separated from the rest by a gap of at least
+       ``UPPER_CUT / LOWER_CUT`` (four decades): the count is certain, from
+       one factorisation.  (For a matrix not known to be semi-definite the
+       same is shown by counts at plus and minus both cuts.)
     4. When they differ, eigenvalues lie in that band.  The lowest
        eigenvalues are estimated by subspace (block inverse) iteration with
-       the factor already made, the cut is placed in the widest relative gap
-       of that low spectrum (from the round-off floor up), and the inertia at
-       the middle of the gap gives the count.  The width of the gap is
-       reported; a gap under :data:`SURE_GAP` marks the count as uncertain.
+       the factor already made, and the cut is placed in the widest relative
+       gap of that low spectrum that leaves only eigenvalues below
+       ``LOWER_CUT`` under it (from the round-off floor up: the cut can move
+       down into a gap, never up past a small but real eigenvalue); the
+       inertia at the middle of the gap gives the count.  The width of the
+       gap is reported; a gap under :data:`SURE_GAP` marks the count as
+       uncertain.
+
+    "Zero" thus means below ``LOWER_CUT`` of the diagonal stiffness: far
+    above the round-off of an assembled matrix (about ``1e-16`` to
+    ``1e-13``), far below any stiffness a solver in double precision can
+    still use.
 
     For a matrix not known to be semi-definite the count is
     ``n(s) - n(-s)`` (eigenvalues with ``|lambda| < s``), and ``n(-s)`` is
@@ -54,9 +65,9 @@ Factorisation
     :class:`InertiaError`, never a wrong count.
 
 Cost
-    Two sparse factorisations (three for a matrix not known to be
-    semi-definite, one more when the band holds eigenvalues) and a few block
-    solves.  Memory is that of the ``L`` and ``U`` factors: fine for a whole
+    One sparse factorisation (four for a matrix not known to be
+    semi-definite, one or two more when the band holds eigenvalues) and a
+    few block solves.  Memory is that of the ``L`` and ``U`` factors: fine for a whole
     matrix of tens of thousands of rows, or for the pieces of
     :mod:`bandwise.algorithms.substructures`, which counts the null space of
     a million-DOF stiffness piece by piece.
@@ -92,6 +103,7 @@ from bandwise.core.errors import BandwiseError
 from bandwise.core.graph import graph_from_matrix
 
 from .orderings.nested_dissection import nested_dissection
+from .orderings.symbolic import cholesky_nnz
 
 __all__ = ["InertiaError", "ShiftedFactor", "ZeroModes", "factor_shifted", "zero_modes",
            "LOWER_CUT", "UPPER_CUT", "SURE_GAP"]
@@ -355,9 +367,14 @@ def _counted(factors: dict[float, ShiftedFactor], b: sp.csc_matrix, shift: float
 
 
 def _widest_gap(mags: NDArray[np.float64], top: int) -> tuple[int, float, float]:
-    """Cut position c <= top in sorted magnitudes at the widest ratio: (c, gap, cut)."""
+    """Cut position c <= top at the widest ratio of the sorted magnitudes: (c, gap, cut).
+
+    Every value left below the cut must itself be below ``LOWER_CUT``: the
+    cut may move down into a gap under it, never up past a small but real
+    eigenvalue.
+    """
     mags = np.sort(np.maximum(mags, NOISE_FLOOR))
-    top = min(top, mags.size - 1)
+    top = min(top, mags.size - 1, int(np.count_nonzero(mags <= LOWER_CUT)))
     below = np.r_[NOISE_FLOOR, mags[:-1]]
     ratios = mags[:top + 1] / below[:top + 1]
     c = int(np.argmax(ratios))
@@ -424,8 +441,8 @@ def _count_indefinite(bp: sp.csc_matrix, factors: dict[float, ShiftedFactor],
     return _Count(count, cut, gap, smallest, vectors, factors[-cut].below)
 
 
-def zero_modes(matrix: sp.spmatrix, *, semidefinite: bool = True,
-               basis: bool = False) -> ZeroModes:
+def zero_modes(matrix: sp.spmatrix, *, semidefinite: bool = True, basis: bool = False,
+               max_factor_entries: int | None = None) -> ZeroModes:
     """Count the zero eigenvalues of a symmetric matrix by inertia (see the module notes).
 
     Parameters
@@ -440,6 +457,9 @@ def zero_modes(matrix: sp.spmatrix, *, semidefinite: bool = True,
         plus and minus both cuts, and the clearly negative eigenvalues.
     basis
         Also return an orthonormal basis of the null space.
+    max_factor_entries
+        Refuse (raise) when the factor's predicted size, counted by a
+        symbolic factorisation in the chosen order, exceeds this.
 
     Returns
     -------
@@ -449,7 +469,8 @@ def zero_modes(matrix: sp.spmatrix, *, semidefinite: bool = True,
     ------
     InertiaError
         When the factorisation cannot be made a symmetric LDL^T at round-off
-        accuracy (the count is then unknown, never guessed).
+        accuracy (the count is then unknown, never guessed), or would exceed
+        ``max_factor_entries``.
 
     Examples
     --------
@@ -466,6 +487,11 @@ def zero_modes(matrix: sp.spmatrix, *, semidefinite: bool = True,
     b, scale, empty = _scaled(a)
     n_empty = int(np.count_nonzero(empty))
     perm = _fill_order(b)
+    if max_factor_entries is not None:
+        predicted = cholesky_nnz(graph_from_matrix(b), perm)
+        if predicted > max_factor_entries:
+            raise InertiaError(f"the factor would hold about {predicted:,} entries, over the "
+                               f"limit of {max_factor_entries:,}")
     bp = b[perm][:, perm].tocsc()
     factors: dict[float, ShiftedFactor] = {}
     if bp.shape[0] == 0:

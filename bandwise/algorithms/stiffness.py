@@ -49,7 +49,7 @@ from numpy.typing import NDArray
 
 from bandwise.core.dofs import DOF_NAMES, DofLayout
 from bandwise.core.errors import InputError
-from bandwise.core.model import Model
+from bandwise.core.model import Model, as_xyz
 
 from .inertia import InertiaError, zero_modes
 from .rigid import ZeroEnergyAnalysis, motion_space
@@ -358,9 +358,7 @@ def _elements(model: Model, layout: DofLayout) -> _Elements:
     space = motion_space(model, layout)
     if space is None:
         raise _NotCovered("the DOFs have no standard names")
-    pts = model.points
-    if pts.shape[1] < 3:
-        pts = np.column_stack([pts, np.zeros((pts.shape[0], 3 - pts.shape[1]))])
+    pts = as_xyz(model.points)
     blocks = tuple((block.type, block.data[use])
                    for block, use in zip(model.cells, coupling_cells(model)) if use.any())
     return _Elements(blocks, pts, space, model.is_planar(), layout.masks, dof_offsets(layout))
