@@ -554,10 +554,14 @@ def _node_parts(model: Model, layout: DofLayout, held: NDArray[np.bool_],
     free_per_node = np.add.reduceat(~held, dof_offsets(layout)[:-1]) \
         if held.size else np.zeros(model.n_nodes, dtype=np.int64)
     free_per_node = np.where(layout.per_node > 0, free_per_node, 0)
-    _, parts = pymetis.part_graph(
-        n_pieces, xadj=np.ascontiguousarray(graph.indptr, dtype=np.int64),
-        adjncy=np.ascontiguousarray(graph.indices, dtype=np.int64),
-        vweights=np.maximum(free_per_node, 1).astype(np.int64))
+    xadj = np.ascontiguousarray(graph.indptr, dtype=np.int64)
+    adjncy = np.ascontiguousarray(graph.indices, dtype=np.int64)
+    weights = np.maximum(free_per_node, 1).astype(np.int64)
+    if hasattr(pymetis, "CSRAdjacency"):          # pymetis 2025.2 and later
+        _, parts = pymetis.part_graph(n_pieces, pymetis.CSRAdjacency(xadj, adjncy),
+                                      vweights=weights)
+    else:                                         # earlier releases: plain CSR keywords
+        _, parts = pymetis.part_graph(n_pieces, xadj=xadj, adjncy=adjncy, vweights=weights)
     return np.asarray(parts, dtype=np.int64)
 
 
