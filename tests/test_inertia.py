@@ -159,3 +159,18 @@ def test_factor_size_limit_is_a_refusal_not_a_guess() -> None:
     k = _stiffness(tet_grid(4, 4, 4))
     with pytest.raises(InertiaError, match="over the limit"):
         zero_modes(k, max_factor_entries=100)
+
+
+def test_superlu_with_diagonal_pivots_is_an_ldlt() -> None:
+    # the claim the method rests on: with a diagonal pivot threshold of zero and equal
+    # row and column orders, SuperLU's P A P^T = L U has U = D L^T, so diag(U) holds the
+    # pivots of an LDL^T (checked here to round-off on a shifted, indefinite stiffness)
+    k = _stiffness(tet_grid(5, 5, 4))
+    s = 1e-2 * abs(k).sum(axis=1).max()
+    f = factor_shifted(k, s)
+    lu = f._lu
+    assert np.array_equal(lu.perm_r, lu.perm_c)
+    d = lu.U.diagonal()
+    err = abs(lu.U.T - lu.L @ sp.diags(d)).max() / abs(lu.U).max()
+    assert err < 1e-12
+    assert f.below == int((np.linalg.eigvalsh(k.toarray()) < s).sum()) > 6
