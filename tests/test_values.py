@@ -76,11 +76,12 @@ def test_truss_free_held_and_perturbed(runner, cli_app, tmp_path) -> None:
     assert doc["values"]["zero_modes"] == 3
     assert doc["values"]["positive_definite"] is False and doc["values"]["negative_pivots"] == 0
     assert [f["code"] for f in doc["findings"]] == ["values.singular"]
+    assert doc["verdict"] == "unsupported"          # free: a static solve would be singular
 
     doc = _check_json(runner, cli_app, tmp_path / "truss_held.mtx")
     assert doc["values"]["symmetric"] is True
     assert doc["values"]["zero_modes"] == 0
-    assert doc["values"]["positive_definite"] is True and doc["verdict"] == "clear"
+    assert doc["values"]["positive_definite"] is True and doc["verdict"] == "ready"
     assert 0 < doc["values"]["pivot_ratio"] <= 1
 
     doc = _check_json(runner, cli_app, tmp_path / "truss_bent.mtx")
