@@ -118,8 +118,10 @@ def test_no_gap_is_reported_uncertain() -> None:
 
 def test_indefinite_matrix_counts_zeros_and_negatives_apart() -> None:
     w = np.r_[-2.0, -0.5, 0.0, 0.0, 1e-3, np.linspace(1.0, 3.0, 20)]
-    z = zero_modes(_with_eigenvalues(w), semidefinite=False)
+    a = _with_eigenvalues(w)
+    z = zero_modes(a, semidefinite=False, basis=True)
     assert z.count == 2 and z.negative == 2 and z.factorisations == 4
+    assert z.basis.shape == (a.shape[0], 2) and np.abs(a @ z.basis).max() < 1e-10
 
 
 def test_empty_rows_are_null_vectors_and_basis_spans_the_null_space() -> None:

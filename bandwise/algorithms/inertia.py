@@ -437,7 +437,7 @@ def _count_indefinite(bp: sp.csc_matrix, factors: dict[float, ShiftedFactor],
     vectors = None
     if want_basis and count:
         theta, x = _low_ritz(bp, factors[cut], count + EXTRA_VECTORS, BASIS_ITERATIONS)
-        vectors = x[:, np.argsort(np.abs(theta - cut))[:count]]
+        vectors = x[:, np.argsort(np.abs(theta))[:count]]
     return _Count(count, cut, gap, smallest, vectors, factors[-cut].below)
 
 
