@@ -29,6 +29,7 @@ def _numba_cache_dir() -> str:
 
 os.environ.setdefault("NUMBA_CACHE_DIR", _numba_cache_dir())  # before numba is imported
 
+from bandwise.algorithms.inertia import ZeroModes, zero_modes
 from bandwise.algorithms.orderings.compare import Comparison, OrderingResult, compare_orderings
 from bandwise.algorithms.orderings.frontal import (
     FrontWidth,
@@ -44,6 +45,7 @@ from bandwise.algorithms.supports import (
     parse_support,
     read_support_file,
 )
+from bandwise.algorithms.values import ValuesCheck, check_values
 from bandwise.core.dofs import DofLayout, dof_layout
 from bandwise.core.equations import EquationNumbering, equation_numbering
 from bandwise.core.errors import BandwiseError, InputError, MeshReadError, MeshWriteError
@@ -103,4 +105,5 @@ __all__ += [
     "EquationNumbering", "StiffnessCheck", "SupportSet", "ZeroEnergyAnalysis",
     "apply_supports", "assemble_stiffness", "equation_numbering", "parse_support",
     "read_support_file", "verify_stiffness", "write_dof_map", "zero_energy_modes",
+    "ValuesCheck", "ZeroModes", "check_values", "zero_modes",
 ]

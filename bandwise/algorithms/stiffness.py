@@ -1,10 +1,13 @@
 """Element stiffness matrices with unit material, assembly, and the zero-eigenvalue count.
 
 The kinematic analysis of :mod:`bandwise.algorithms.rigid` is checked, on request, by
-the assembled stiffness itself: hold the supported DOFs, count the
-eigenvalues of the free-free block that are zero to round-off, and compare.
-The count must equal the kinematic count; a difference is reported, never
-hidden.
+the assembled stiffness itself: hold the supported DOFs, count the zero
+eigenvalues of the free-free block, and compare.  The count is made by
+inertia (:mod:`bandwise.algorithms.inertia`: Sylvester's law on LDL^T
+factorisations, every repeated zero counted, the cut placed by the gap in
+the spectrum), on the whole matrix up to :data:`WHOLE_DOFS` free DOFs and
+piece by piece above (:mod:`bandwise.algorithms.substructures`).  The count
+must equal the kinematic count; a difference is reported, never hidden.
 
 Elements (unit material E = 1, nu = 0.3, A = 1, I = 1/12, J = 0.1406,
 thickness 1; common practice for a stiffness pattern check):
@@ -36,20 +39,21 @@ J. S. Przemieniecki, *Theory of Matrix Structural Analysis*, McGraw-Hill, 1968
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-import scipy.linalg as la
 import scipy.sparse as sp
-import scipy.sparse.linalg as spla
 from numpy.typing import NDArray
 
 from bandwise.core.dofs import DOF_NAMES, DofLayout
 from bandwise.core.errors import InputError
-from bandwise.core.model import Model
+from bandwise.core.model import Model, as_xyz
 
+from .inertia import InertiaError, zero_modes
 from .rigid import ZeroEnergyAnalysis, motion_space
+from .substructures import glued_zero_modes
 from .supports import SupportSet
 
 _BIT = {name: 1 << k for k, name in enumerate(DOF_NAMES)}
@@ -57,12 +61,12 @@ _BIT = {name: 1 << k for k, name in enumerate(DOF_NAMES)}
 #: Unit material and section (common practice for a pattern and rank check).
 YOUNG, POISSON = 1.0, 0.3
 AREA, INERTIA, TORSION = 1.0, 1.0 / 12.0, 0.1406
-#: Largest number of free DOFs the verification accepts.
-MAX_VERIFY_DOFS = 20000
-#: Up to this many free DOFs the eigenvalues come from a dense solver.
-DENSE_DOFS = 2500
-#: Eigenvalues below this fraction of the largest count as zero.
-ZERO_RTOL = 1e-8
+#: Largest number of free DOFs the verification accepts (a mesh of a million nodes).
+MAX_VERIFY_DOFS = 3_000_000
+#: Up to this many free DOFs the whole supported stiffness is factored; above, piece by piece.
+WHOLE_DOFS = 20_000
+#: Free DOFs per piece when counting piece by piece.
+PIECE_DOFS = 3_000
 
 
 # --------------------------------------------------------------------------- elements
@@ -278,10 +282,10 @@ def continuum_stiffness(shape: str, x: NDArray[np.float64], scalar: bool = False
     k = None
     for grad, w in _physical_gradients(shape, x):
         if scalar:
-            term = np.einsum("mai,mbi->mab", grad, grad)
+            term = np.matmul(grad, grad.transpose(0, 2, 1))
         else:
             b = _strain_matrix(grad)
-            term = np.einsum("mia,ij,mjb->mab", b, d, b)
+            term = np.matmul(b.transpose(0, 2, 1), np.matmul(d, b))   # B^T D B
         term = term * w[:, None, None]
         k = term if k is None else k + term
     return k
@@ -332,6 +336,61 @@ def _element_dofs(masks, off, data, names):
     return np.stack(cols, axis=1)
 
 
+@dataclass(frozen=True)
+class _Elements:
+    """The coupling cells of a model and what their element matrices need."""
+
+    blocks: tuple[tuple[str, NDArray[np.int64]], ...]
+    pts: NDArray[np.float64]
+    space: str
+    planar: bool
+    masks: NDArray[np.int64]
+    off: NDArray[np.int64]
+
+
+class _NotCovered(Exception):
+    """An element the stiffness cannot be built for (the message says which)."""
+
+
+def _elements(model: Model, layout: DofLayout) -> _Elements:
+    from .topology import coupling_cells
+
+    space = motion_space(model, layout)
+    if space is None:
+        raise _NotCovered("the DOFs have no standard names")
+    pts = as_xyz(model.points)
+    blocks = tuple((block.type, block.data[use])
+                   for block, use in zip(model.cells, coupling_cells(model)) if use.any())
+    return _Elements(blocks, pts, space, model.is_planar(), layout.masks, dof_offsets(layout))
+
+
+def _element_matrices(els: _Elements, cell_type: str, data: NDArray[np.int64],
+                      ) -> tuple[NDArray[np.float64], NDArray[np.int64]]:
+    """Element matrices ``(m, k, k)`` of some cells of one type and their global DOFs ``(m, k)``."""
+    try:
+        with np.errstate(all="ignore"):
+            got = _block_matrices(cell_type, data, els.pts, els.space, els.planar, els.masks)
+    except np.linalg.LinAlgError:
+        got = f"degenerate {cell_type} elements (zero length, area or volume)"
+    if isinstance(got, str):
+        raise _NotCovered(got)
+    ke, names = got
+    if not np.isfinite(ke).all():
+        raise _NotCovered(f"degenerate {cell_type} elements (zero length, area or volume)")
+    dofs = _element_dofs(els.masks, els.off, data, names)
+    if dofs is None:
+        raise _NotCovered(f"{cell_type} elements need {' '.join(names)}, "
+                          "which some of their nodes do not carry")
+    return ke, dofs
+
+
+def _triplets(ke: NDArray[np.float64], dofs: NDArray[np.int64],
+              ) -> tuple[NDArray[np.int64], NDArray[np.int64], NDArray[np.float64]]:
+    """Rows, columns and values of element matrices, for a COO assembly."""
+    k = dofs.shape[1]
+    return np.repeat(dofs, k, axis=1).ravel(), np.tile(dofs, (1, k)).ravel(), ke.ravel()
+
+
 def assemble_stiffness(model: Model, layout: DofLayout) -> StiffnessMatrix:
     """Assemble the unit-material stiffness of a model, DOFs numbered node after node.
 
@@ -341,41 +400,17 @@ def assemble_stiffness(model: Model, layout: DofLayout) -> StiffnessMatrix:
         The sparse matrix, or None with the reason when an element type is
         not covered (see the module table).
     """
-    from .topology import coupling_cells
-
-    space = motion_space(model, layout)
-    if space is None:
-        return StiffnessMatrix(None, "the DOFs have no standard names")
-    pts = model.points
-    if pts.shape[1] < 3:
-        pts = np.column_stack([pts, np.zeros((pts.shape[0], 3 - pts.shape[1]))])
-    planar = model.is_planar()
-    masks, off = layout.masks, dof_offsets(layout)
+    n = int(dof_offsets(layout)[-1])
     rows, cols, vals = [], [], []
-    for block, use in zip(model.cells, coupling_cells(model)):
-        if not use.any():
-            continue
-        data = block.data[use]
-        try:
-            with np.errstate(all="ignore"):
-                got = _block_matrices(block.type, data, pts, space, planar, masks)
-        except np.linalg.LinAlgError:
-            got = f"degenerate {block.type} elements (zero length, area or volume)"
-        if isinstance(got, str):
-            return StiffnessMatrix(None, got)
-        ke, names = got
-        if not np.isfinite(ke).all():
-            return StiffnessMatrix(None, f"degenerate {block.type} elements "
-                                         "(zero length, area or volume)")
-        dofs = _element_dofs(masks, off, data, names)
-        if dofs is None:
-            return StiffnessMatrix(None, f"{block.type} elements need {' '.join(names)}, "
-                                         "which some of their nodes do not carry")
-        k = dofs.shape[1]
-        rows.append(np.repeat(dofs, k, axis=1).ravel())
-        cols.append(np.tile(dofs, (1, k)).ravel())
-        vals.append(ke.ravel())
-    n = int(off[-1])
+    try:
+        els = _elements(model, layout)
+        for cell_type, data in els.blocks:
+            r, c, v = _triplets(*_element_matrices(els, cell_type, data))
+            rows.append(r)
+            cols.append(c)
+            vals.append(v)
+    except _NotCovered as exc:
+        return StiffnessMatrix(None, str(exc))
     if not rows:
         return StiffnessMatrix(sp.csr_matrix((n, n)))
     mat = sp.coo_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
@@ -426,7 +461,7 @@ class StiffnessCheck:
     Attributes
     ----------
     verified
-        True when the stiffness could be assembled and its eigenvalues counted.
+        True when the stiffness could be built and its zero eigenvalues counted.
     zero_eigenvalues
         Zero eigenvalues of the free-free stiffness block (None if not verified).
     kinematic
@@ -434,9 +469,17 @@ class StiffnessCheck:
     free_dofs
         Order of the free-free block.
     method
-        ``"dense"`` or ``"shift-invert"`` eigenvalues, or the reason for no check.
+        How the count was made (:mod:`bandwise.algorithms.inertia`, whole or
+        piece by piece), or the reason for no check.
     smallest_nonzero
-        Smallest eigenvalue above the zero threshold, relative to the largest.
+        Estimate of the smallest eigenvalue above the zero cluster, relative
+        to the diagonal stiffness, when one lies close (below ``UPPER_CUT``
+        of :mod:`~bandwise.algorithms.inertia`); None when it lies above.
+    gap
+        Ratio of the eigenvalues on both sides of the cut (the smallest met,
+        piece by piece).
+    certain
+        True when the gap is wide (see :data:`bandwise.algorithms.inertia.SURE_GAP`).
     """
 
     verified: bool
@@ -445,6 +488,8 @@ class StiffnessCheck:
     free_dofs: int
     method: str
     smallest_nonzero: float | None = None
+    gap: float | None = None
+    certain: bool | None = None
 
     @property
     def agrees(self) -> bool | None:
@@ -456,77 +501,137 @@ class StiffnessCheck:
         """One line for the report."""
         if not self.verified:
             return f"stiffness check not run: {self.method}"
+        doubt = "" if self.certain else (
+            f" (the zero eigenvalues are not clearly apart from the others: gap "
+            f"{self.gap:.1e}; a nearly singular stiffness)")
         if self.agrees:
             return (f"stiffness check: {self.zero_eigenvalues} zero eigenvalue(s) of the "
-                    f"supported stiffness ({self.free_dofs} free DOFs), as the kinematic "
-                    "analysis says")
+                    f"supported stiffness ({self.free_dofs:,} free DOFs), as the kinematic "
+                    f"analysis says{doubt}")
         return (f"stiffness check DISAGREES: {self.zero_eigenvalues} zero eigenvalue(s) of the "
                 f"supported stiffness, kinematic analysis {self.kinematic}: inspect the "
-                "elements (distorted, inverted or unsupported types) before trusting either")
+                f"elements (distorted, inverted or unsupported types) before trusting "
+                f"either{doubt}")
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form."""
+        gap = None if self.gap is None or not np.isfinite(self.gap) else self.gap
         return {"verified": self.verified, "zero_eigenvalues": self.zero_eigenvalues,
                 "kinematic": self.kinematic, "agrees": self.agrees, "free_dofs": self.free_dofs,
                 "method": self.method, "smallest_nonzero_relative": self.smallest_nonzero,
-                "message": self.message}
+                "gap": gap, "certain": self.certain, "message": self.message}
 
 
-def free_block(matrix: sp.csr_matrix, layout: DofLayout, fixed: NDArray[np.int64],
-               ) -> sp.csr_matrix:
-    """The free-free block of a stiffness matrix: rows and columns of held DOFs removed."""
-    held = np.zeros(matrix.shape[0], dtype=bool)
+def _held_mask(layout: DofLayout, fixed: NDArray[np.int64]) -> NDArray[np.bool_]:
+    """True at every held DOF (DOFs numbered node after node)."""
+    held = np.zeros(int(layout.total), dtype=bool)
     off = dof_offsets(layout)
     for name in DOF_NAMES:
         bit = _BIT[name]
         nodes = np.flatnonzero((fixed & bit) != 0)
         if nodes.size:
             held[_dof_index(layout.masks, off, nodes, bit)] = True
-    free = np.flatnonzero(~held)
+    return held
+
+
+def free_block(matrix: sp.csr_matrix, layout: DofLayout, fixed: NDArray[np.int64],
+               ) -> sp.csr_matrix:
+    """The free-free block of a stiffness matrix: rows and columns of held DOFs removed."""
+    free = np.flatnonzero(~_held_mask(layout, fixed))
     return matrix[free][:, free].tocsr()
 
 
-def count_zero_eigenvalues(matrix: sp.spmatrix, expected: int = 0,
-                           ) -> tuple[int, float | None, str]:
-    """Zero eigenvalues of a symmetric positive semi-definite matrix.
+def _node_parts(model: Model, layout: DofLayout, held: NDArray[np.bool_],
+                n_pieces: int) -> NDArray[np.int64]:
+    """A piece number per node: METIS partition of the node graph, free DOFs as weights."""
+    if n_pieces <= 1:
+        return np.zeros(model.n_nodes, dtype=np.int64)
+    import pymetis
 
-    Dense ``eigh`` up to :data:`DENSE_DOFS`; above, the smallest eigenvalues
-    by shift-invert Lanczos (``eigsh``, sigma slightly below zero so the
-    shifted matrix is definite), asking for more until one is clearly
-    nonzero.  Zero means below :data:`ZERO_RTOL` times the largest eigenvalue
-    (bounded by the largest absolute row sum).
+    from bandwise.core.graph import node_graph
 
-    Returns
-    -------
-    (count, smallest nonzero eigenvalue relative to the largest, method)
+    graph = node_graph(model)
+    free_per_node = np.add.reduceat(~held, dof_offsets(layout)[:-1]) \
+        if held.size else np.zeros(model.n_nodes, dtype=np.int64)
+    free_per_node = np.where(layout.per_node > 0, free_per_node, 0)
+    xadj = np.ascontiguousarray(graph.indptr, dtype=np.int64)
+    adjncy = np.ascontiguousarray(graph.indices, dtype=np.int64)
+    weights = np.maximum(free_per_node, 1).astype(np.int64)
+    if hasattr(pymetis, "CSRAdjacency"):          # pymetis 2025.2 and later
+        _, parts = pymetis.part_graph(n_pieces, pymetis.CSRAdjacency(xadj, adjncy),
+                                      vweights=weights)
+    else:                                         # earlier releases: plain CSR keywords
+        _, parts = pymetis.part_graph(n_pieces, xadj=xadj, adjncy=adjncy, vweights=weights)
+    return np.asarray(parts, dtype=np.int64)
+
+
+def stiffness_pieces(model: Model, layout: DofLayout, fixed: NDArray[np.int64],
+                     n_pieces: int) -> Iterator[tuple[NDArray[np.int64], sp.csr_matrix]]:
+    """The supported unit-material stiffness as pieces, one group of elements at a time.
+
+    The nodes are split into ``n_pieces`` groups by METIS (weighted by free
+    DOFs), each element goes with its first node, and each piece is the
+    free-free stiffness of its elements over the free DOFs they touch.
+    The sum of the pieces is :func:`free_block` of :func:`assemble_stiffness`.
+
+    Yields
+    ------
+    (dofs, matrix)
+        Sorted free-DOF numbers (positions among the free DOFs) and the
+        piece's matrix over them.
+
+    Raises
+    ------
+    _NotCovered
+        When an element type is not covered (the message says which).
     """
-    n = matrix.shape[0]
-    if n == 0:
-        return 0, None, "dense"
-    if n <= DENSE_DOFS:
-        w = la.eigh(matrix.toarray(), eigvals_only=True)
-        top = max(float(w[-1]), 1e-300)
-        zero = w <= ZERO_RTOL * top
-        rest = w[~zero]
-        return int(zero.sum()), (float(rest[0] / top) if rest.size else None), "dense"
-    csr = sp.csr_matrix(matrix)
-    top = float(abs(csr).sum(axis=1).max())
-    sigma = -1e-6 * top
-    k = min(n - 1, max(expected + 6, 8))
-    while True:
-        w = spla.eigsh(csr, k=k, sigma=sigma, which="LM", return_eigenvectors=False, tol=1e-10)
-        w = np.sort(w)
-        zero = w <= ZERO_RTOL * top
-        if not zero.all() or k >= n - 1:
-            rest = w[~zero]
-            return int(zero.sum()), (float(rest[0] / top) if rest.size else None), "shift-invert"
-        k = min(n - 1, 2 * k)
+    els = _elements(model, layout)
+    held = _held_mask(layout, fixed)
+    free_index = np.cumsum(~held) - 1
+    free_index[held] = -1
+    node_part = _node_parts(model, layout, held, n_pieces)
+    groups = []
+    for cell_type, data in els.blocks:
+        part = node_part[data[:, 0]]
+        order = np.argsort(part, kind="stable")
+        bounds = np.searchsorted(part[order], np.arange(n_pieces + 1))
+        groups.append((cell_type, data[order], bounds))
+    local = np.full(free_index.size and int(free_index.max()) + 1, -1, dtype=np.int64)
+    for s in range(n_pieces):
+        rows, cols, vals, touched = [], [], [], []
+        for cell_type, data, bounds in groups:
+            cells = data[bounds[s]:bounds[s + 1]]
+            if len(cells):
+                ke, dofs = _element_matrices(els, cell_type, cells)
+                fd = free_index[dofs]
+                touched.append(fd.ravel())
+                r, c, v = _triplets(ke, fd)
+                keep = (r >= 0) & (c >= 0)
+                rows.append(r[keep])
+                cols.append(c[keep])
+                vals.append(v[keep])
+        if not rows:
+            continue
+        g = np.unique(np.concatenate(touched))
+        g = g[g >= 0]
+        local[g] = np.arange(g.size)
+        k = sp.coo_matrix((np.concatenate(vals), (local[np.concatenate(rows)],
+                                                  local[np.concatenate(cols)])),
+                          shape=(g.size, g.size)).tocsr()
+        local[g] = -1
+        yield g, k
 
 
 def verify_stiffness(model: Model, layout: DofLayout, supports: SupportSet,
-                     analysis: ZeroEnergyAnalysis,
-                     max_dofs: int = MAX_VERIFY_DOFS) -> StiffnessCheck:
+                     analysis: ZeroEnergyAnalysis, max_dofs: int = MAX_VERIFY_DOFS,
+                     whole_dofs: int = WHOLE_DOFS, piece_dofs: int = PIECE_DOFS,
+                     ) -> StiffnessCheck:
     """Count the zero eigenvalues of the supported stiffness and compare with the kinematics.
+
+    The count is by inertia (:func:`bandwise.algorithms.inertia.zero_modes`):
+    of the whole free-free stiffness up to ``whole_dofs`` free DOFs, and
+    above that piece by piece (:func:`bandwise.algorithms.substructures.glued_zero_modes`
+    over :func:`stiffness_pieces` of about ``piece_dofs`` free DOFs each).
 
     Parameters
     ----------
@@ -536,14 +641,17 @@ def verify_stiffness(model: Model, layout: DofLayout, supports: SupportSet,
         The kinematic result (:func:`bandwise.algorithms.rigid.zero_energy_modes`).
     max_dofs
         Largest number of free DOFs checked (default :data:`MAX_VERIFY_DOFS`).
+    whole_dofs, piece_dofs
+        Where the count goes piece by piece, and the size of a piece.
 
     Raises
     ------
     InputError
-        If ``max_dofs`` is not positive.
+        If a limit is not positive.
     """
-    if max_dofs < 1:
-        raise InputError(f"the verification limit must be positive, got {max_dofs}")
+    if min(max_dofs, whole_dofs, piece_dofs) < 1:
+        raise InputError("the verification limits must be positive, got "
+                         f"{max_dofs}, {whole_dofs}, {piece_dofs}")
     kinematic = analysis.total
     n_free = layout.total - supports.n_fixed_dofs
     if n_free > max_dofs:
@@ -552,9 +660,21 @@ def verify_stiffness(model: Model, layout: DofLayout, supports: SupportSet,
     if not analysis.complete:
         return StiffnessCheck(False, None, kinematic, n_free,
                               "the kinematic analysis did not cover every part")
-    built = assemble_stiffness(model, layout)
-    if built.matrix is None:
-        return StiffnessCheck(False, None, kinematic, n_free, built.reason)
-    kff = free_block(built.matrix, layout, supports.fixed)
-    count, smallest, method = count_zero_eigenvalues(kff, kinematic)
-    return StiffnessCheck(True, count, kinematic, kff.shape[0], method, smallest)
+    try:
+        if n_free <= whole_dofs:
+            built = assemble_stiffness(model, layout)
+            if built.matrix is None:
+                raise _NotCovered(built.reason)
+            z = zero_modes(free_block(built.matrix, layout, supports.fixed))
+            return StiffnessCheck(True, z.count, kinematic, n_free,
+                                  f"whole supported stiffness: {z.method}", z.smallest_nonzero,
+                                  z.gap, z.certain)
+        n_pieces = -(-n_free // piece_dofs)
+        glued = glued_zero_modes(stiffness_pieces(model, layout, supports.fixed, n_pieces),
+                                 n_free)
+        return StiffnessCheck(True, glued.count, kinematic, n_free, glued.method, None,
+                              glued.smallest_gap, glued.certain)
+    except _NotCovered as exc:
+        return StiffnessCheck(False, None, kinematic, n_free, str(exc))
+    except InertiaError as exc:
+        return StiffnessCheck(False, None, kinematic, n_free, f"the count failed: {exc}")

@@ -27,12 +27,13 @@ import numpy as np
 from numpy.typing import NDArray
 
 from bandwise.algorithms.checks import CheckOptions, run_checks
-from bandwise.algorithms.checks.findings import Finding
+from bandwise.algorithms.checks.findings import Finding, severity_rank
 from bandwise.algorithms.checks.verdict import Verdict, check_fail_on, decide_verdict, failing
 from bandwise.algorithms.modeshape import free_motion
 from bandwise.algorithms.orderings.compare import Comparison
 from bandwise.algorithms.supports import Support
 from bandwise.algorithms.topology import face_connected_blocks, facet_table_in_background
+from bandwise.algorithms.values import ValuesCheck, check_values
 from bandwise.core.dofs import DofLayout, dof_layout
 from bandwise.core.equations import EquationNumbering, equation_numbering
 from bandwise.core.errors import BandwiseError, InputError, one_line
@@ -83,6 +84,9 @@ class CheckResult:
         when asked for (``mode_shape=True``) and small enough to compute.
     kept_equations
         With orderings compared: the equations numbered in the kept order.
+    values
+        A matrix file with values: what the values say
+        (:func:`bandwise.algorithms.values.check_values`).
     model, graph, layout
         What the figures were measured on, kept for a report (not shown).
     next_steps
@@ -108,6 +112,7 @@ class CheckResult:
     layout: DofLayout | int = field(default=1, repr=False, compare=False)
     next_steps: tuple[NextStep, ...] = ()
     comparison_time: ComparisonTime | None = field(default=None, compare=False)
+    values: ValuesCheck | None = None
 
     def __repr__(self) -> str:
         s = self.summary
@@ -134,6 +139,8 @@ class CheckResult:
             out["comparison"] = self.comparison.to_dict()
         if self.comparison_time is not None:
             out["comparison_time"] = self.comparison_time.to_dict()
+        if self.values is not None:
+            out["values"] = self.values.to_dict()
         return out
 
 
@@ -157,6 +164,7 @@ def check_file(path: str | os.PathLike[str], *, supports: Iterable[str | Support
                stiffness_check: bool = False, dof_map: str | os.PathLike[str] | None = None,
                compare: str | None = None, objective: str = "profile",
                mode_shape: bool = False,
+               coordinates: str | os.PathLike[str] | None = None,
                progress: Progress | ProgressCallback | None = None) -> CheckResult:
     """Check one mesh (or matrix) file: parts, nodes, elements, joints, supports, sizes.
 
@@ -177,6 +185,10 @@ def check_file(path: str | os.PathLike[str], *, supports: Iterable[str | Support
         ``objective``; None compares nothing.
     mode_shape
         Also compute one free motion for a picture (small models only).
+    coordinates
+        For a matrix file with values: a mesh whose nodes, in file order, are
+        the matrix's node blocks (``dofs_per_node`` DOFs each, or rows over
+        nodes); adds the rigid-body check ``K r = 0``.
     progress
         A :class:`~bandwise.core.progress.Progress`, or a function called with
         ``(label, None)`` when a step starts and ``(label, seconds)`` when it ends.
@@ -197,7 +209,10 @@ def check_file(path: str | os.PathLike[str], *, supports: Iterable[str | Support
     if is_matrix_file(path):
         if held:
             raise InputError(f"{path}: supports apply to a mesh, not to a matrix file")
-        return _check_matrix(path, fail_on, compare, objective, progress)
+        return _check_matrix(path, fail_on, compare, objective, progress, dofs_per_node,
+                             coordinates)
+    if coordinates is not None:
+        raise InputError(f"{path}: coordinates (--coordinates) apply to a matrix file")
     with step(progress, f"reading {path.name}"):
         model, deck = read_mesh_or_deck(path, file_format)
     extra = deck_inputs(model, deck, dof_layout(model, dofs_per_node=dofs_per_node,
@@ -254,25 +269,46 @@ def analyse_model(model: Model, extra: DeckInputs, deck: Deck | None, file: str,
 
 
 def _check_matrix(path: Path, fail_on: str, compare: str | None, objective: str,
-                  progress: Progress | None) -> CheckResult:
-    """A matrix pattern: the figures of its current order (and orderings, if asked)."""
+                  progress: Progress | None, dofs_per_node: int | None = None,
+                  coordinates: str | os.PathLike[str] | None = None) -> CheckResult:
+    """A matrix: the figures of its current order (and orderings, if asked), its values."""
     with step(progress, "reading the matrix"):
         data = read_matrix_data(path)
+    points = None
+    if coordinates is not None:
+        with step(progress, f"reading node coordinates from {Path(coordinates).name}"):
+            points = read_mesh_or_deck(Path(coordinates), None)[0].points
     return analyse_matrix(data, graph_from_matrix(data.matrix), fail_on=fail_on,
-                          compare=compare, objective=objective, progress=progress)
+                          compare=compare, objective=objective, progress=progress,
+                          dofs_per_node=dofs_per_node, coordinates=points)
 
 
 def analyse_matrix(data: MatrixData, graph: NodeGraph, *, fail_on: str = "error",
                    compare: str | None = None, objective: str = "profile",
-                   progress: Progress | None = None) -> CheckResult:
-    """The analysis of a matrix already read: its figures (and orderings, if asked)."""
+                   progress: Progress | None = None, dofs_per_node: int | None = None,
+                   coordinates: NDArray[np.float64] | None = None) -> CheckResult:
+    """The analysis of a matrix already read: its figures (and orderings, if asked).
+
+    A matrix with real values is also checked by them
+    (:func:`bandwise.algorithms.values.check_values`, with ``dofs_per_node``
+    and ``coordinates`` for the rigid-body check); its findings make the
+    verdict, its zero modes count as free modes (no supports in a matrix).
+    """
     path = data.source
     comparison = timing = None
     if compare is not None and compare != "none":
         comparison, timing = timed_comparison(graph, compare, objective, 1, progress=progress)
-    return CheckResult(str(path), "matrix", summarise_matrix(data),
-                       decide_verdict(None, fail_on), None, fail_on, None, comparison,
-                       graph=graph, layout=1, comparison_time=timing)
+    values, findings = None, None
+    verdict = decide_verdict(None, fail_on)
+    if data.field in ("real", "integer"):
+        with step(progress, "checking the values"):
+            values = check_values(data.matrix, dofs_per_node=dofs_per_node,
+                                  coordinates=coordinates)
+        findings = tuple(sorted(values.findings(), key=lambda f: severity_rank(f.severity)))
+        verdict = decide_verdict(findings, fail_on, free_modes=values.zero_modes or 0)
+    return CheckResult(str(path), "matrix", summarise_matrix(data), verdict, findings, fail_on,
+                       None, comparison, graph=graph, layout=1, comparison_time=timing,
+                       values=values)
 
 
 def check_files(paths: Iterable[str | os.PathLike[str]], **options: Any

@@ -35,6 +35,11 @@ ToleranceOpt = Annotated[float | None, typer.Option(
                         "(default: a fraction of the shortest element edge).")]
 RelToleranceOpt = Annotated[float, typer.Option(
     "--relative-tolerance", help="That fraction of the shortest element edge.")]
+CoordinatesOpt = Annotated[Path | None, typer.Option(
+    "--coordinates", help="For matrix files with values: a mesh whose nodes, in file order, "
+                          "are the matrix's node blocks (DOFs node after node, "
+                          "--dofs-per-node or rows / nodes each); adds the rigid-body check "
+                          "K r = 0.")]
 
 
 @app.command()
@@ -54,6 +59,7 @@ def check(
     stiffness_check: StiffnessCheckOpt = False,
     dof_map: DofMapOpt = None,
     report_dir: ReportOpt = None,
+    coordinates: CoordinatesOpt = None,
 ) -> None:
     """Size up and check meshes before a run: parts, orphans, coincident nodes, joints, elements.
 
@@ -67,7 +73,8 @@ def check(
         files, supports=support or (), supports_file=supports_file, file_format=file_format,
         dofs_per_node=dofs_per_node, physics=physics, fail_on=fail_on, tolerance=tolerance,
         relative_tolerance=relative_tolerance, stiffness_check=stiffness_check,
-        dof_map=dof_map, mode_shape=report_dir is not None, progress=StderrProgress())
+        dof_map=dof_map, mode_shape=report_dir is not None, coordinates=coordinates,
+        progress=StderrProgress())
     for r in results:
         if isinstance(r, FileFailure):
             typer.echo(f"bandwise: error: {r.error}", err=True)

@@ -30,7 +30,8 @@ SupportFileOpt = Annotated[Path | None, typer.Option(
                        "set / plane / box / near / node, and dofs (and optional tol, label).")]
 StiffnessCheckOpt = Annotated[bool, typer.Option(
     "--stiffness-check", help="Assemble a unit-material stiffness, hold the supports and count "
-                              f"its zero eigenvalues (up to {MAX_VERIFY_DOFS:,} free DOFs); "
+                              "its zero eigenvalues by inertia (up to "
+                              f"{MAX_VERIFY_DOFS:,} free DOFs); "
                               "the count must equal the zero-energy analysis.")]
 DofMapOpt = Annotated[Path | None, typer.Option(
     "--dof-map", help="Write the equation number of every DOF (or 'fixed') as CSV "

@@ -13,6 +13,7 @@ from pathlib import Path
 from bandwise.algorithms.checks.findings import Finding
 from bandwise.algorithms.orderings.compare import Comparison
 from bandwise.algorithms.orderings.frontal import ElementReordering
+from bandwise.algorithms.values import ValuesCheck
 from bandwise.core.summary import MeshSummary
 from bandwise.core.tables import human_bytes, human_count, human_seconds, render_table
 from bandwise.formats.matrix_io import matrix_facts
@@ -147,8 +148,11 @@ def supports_text(report: SupportAnalysis) -> str:
 def check_text(result: CheckResult) -> str:
     """Everything ``check`` prints for one file, verdict first."""
     if result.subject == "matrix":
-        return "\n".join([render_table(matrix_facts(result.summary), align="ll"), "",
-                          numbering_text(result.summary)])
+        lines = [render_table(matrix_facts(result.summary), align="ll"), "",
+                 numbering_text(result.summary)]
+        if result.values is not None:
+            lines += ["", values_text(result.values), "", findings_text(result.findings or ())]
+        return "\n".join(lines)
     lines = [summary_text(result.summary), "", findings_text(result.findings or ())]
     if result.supports is not None:
         lines += ["", supports_text(result.supports)]
@@ -165,6 +169,32 @@ def next_steps_text(steps: Sequence[NextStep], width: int = 72) -> str:
         if s.command:
             lines.append(f"   {s.command}")
     return "\n".join(lines)
+
+
+def values_text(v: ValuesCheck) -> str:
+    """The "Values" section of ``check`` on a matrix file with values."""
+    sym = "yes" if v.symmetric else "NO"
+    if v.asymmetry_at is not None:
+        sym += (f" (largest relative asymmetry {v.largest_asymmetry:.2e} at row "
+                f"{v.asymmetry_at[0]}, column {v.asymmetry_at[1]})")
+    facts = [("symmetric", sym)]
+    if v.count is None:
+        facts.append(("zero modes", f"not counted: {v.not_counted}"))
+    else:
+        c = v.count
+        facts += [("zero modes", f"{c.count} ({'certain' if c.certain else 'uncertain'}: gap "
+                                 f"{c.gap:.1e})"),
+                  ("positive definite", "yes" if v.positive_definite else "no"),
+                  ("negative pivots", f"{v.negative_pivots}"),
+                  ("pivot ratio", "-" if v.pivot_ratio is None else f"{v.pivot_ratio:.2e}")]
+    facts.append(("zero or negative diagonal", f"{v.n_nonpositive_diagonal:,} row(s)"))
+    if v.rigid is not None and v.rigid.residuals:
+        worst = ", ".join(f"{m} {r:.1e}" for m, r in zip(v.rigid.motions, v.rigid.residuals))
+        facts.append(("rigid motions, |K r|",
+                      f"{worst} ({'zero' if v.rigid.passed else 'NOT zero'})"))
+    elif v.rigid is not None:
+        facts.append(("rigid motions", v.rigid.note))
+    return "\n".join(["Values", render_table(facts, align="ll")])
 
 
 def equations_text(eq: RenumberedEquations) -> str:
