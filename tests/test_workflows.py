@@ -167,3 +167,14 @@ def test_readme_python_examples_run():
     finally:
         os.chdir(here)
     assert test.examples and runner.failures == 0
+
+
+def test_effort_reaches_the_orderings_and_a_bad_one_is_refused(block, runner, cli_app, tmp_path):
+    res = runner.invoke(cli_app, ["renumber", "--json", "--effort", "balanced", str(block),
+                                  str(tmp_path / "b.vtu")])
+    assert res.exit_code == 0
+    assert json.loads(res.stdout)["comparison"]["effort"] == "balanced"
+    bad = runner.invoke(cli_app, ["renumber", "--effort", "slow", str(block),
+                                  str(tmp_path / "c.vtu")])
+    assert bad.exit_code == 2 and "unknown effort 'slow'" in bad.stderr
+    assert not (tmp_path / "c.vtu").exists()

@@ -26,7 +26,7 @@ from numpy.typing import NDArray
 
 from bandwise import __version__
 from bandwise.algorithms.checks import CheckOptions
-from bandwise.algorithms.orderings.compare import OBJECTIVES, Comparison
+from bandwise.algorithms.orderings.compare import EFFORTS, OBJECTIVES, Comparison
 from bandwise.algorithms.orderings.frontal import (
     ElementReordering,
     frontal_reordering,
@@ -185,7 +185,7 @@ def renumber_file(src: str | os.PathLike[str], dst: str | os.PathLike[str], *,
                   dofs_per_node: int | None = None, physics: str | None = None,
                   replace_input: bool = False,
                   dof_map: str | os.PathLike[str] | None = None,
-                  analyse: bool = False, fail_on: str = "error",
+                  analyse: bool = False, fail_on: str = "error", effort: str = "fast",
                   progress: Progress | ProgressCallback | None = None) -> RenumberResult:
     """Renumber the nodes of one file: try orderings, keep the best, write it and the map.
 
@@ -206,6 +206,10 @@ def renumber_file(src: str | os.PathLike[str], dst: str | os.PathLike[str], *,
     analyse, fail_on
         Also run the checks and the zero-energy analysis on the mesh (what a
         report of the job shows), gated at ``fail_on``.
+    effort
+        Time traded for quality by the orderings: ``fast`` (default),
+        ``balanced`` or ``thorough``
+        (:data:`~bandwise.algorithms.orderings.compare.EFFORTS`).
     progress
         A :class:`~bandwise.core.progress.Progress` or a plain function.
 
@@ -224,6 +228,8 @@ def renumber_file(src: str | os.PathLike[str], dst: str | os.PathLike[str], *,
                          "or a list naming sloan)")
     if objective not in OBJECTIVES:
         raise InputError(f"unknown objective {objective!r}; valid: {', '.join(OBJECTIVES)}")
+    if effort not in EFFORTS:
+        raise InputError(f"unknown effort {effort!r}; valid: {', '.join(EFFORTS)}")
     if not src.exists():
         raise InputError(f"{src}: no such file")
     _check_outputs(src, dst, node_map, replace_input)
@@ -233,10 +239,10 @@ def renumber_file(src: str | os.PathLike[str], dst: str | os.PathLike[str], *,
         if held or dof_map is not None:
             raise InputError("supports and a DOF map need a mesh, not a matrix")
         return _renumber_matrix(src, dst, node_map, method, objective, options, progress,
-                                analyse, fail_on)
+                                analyse, fail_on, effort)
     return _renumber_mesh(src, dst, node_map, method, objective, options, progress,
                           file_format, output_format, dofs_per_node, physics, element_order,
-                          held, dof_map, analyse, fail_on)
+                          held, dof_map, analyse, fail_on, effort)
 
 
 def _check_outputs(source: Path, out: Path, node_map: Path, replace_input: bool) -> None:
@@ -270,7 +276,7 @@ def _check_writable_format(out: Path, fmt: str | None) -> None:
 
 def _renumber_matrix(source: Path, out: Path, node_map: Path, methods: str, objective: str,
                      options: dict[str, dict[str, float]], progress: Progress | None,
-                     analyse: bool, fail_on: str) -> RenumberResult:
+                     analyse: bool, fail_on: str, effort: str) -> RenumberResult:
     """Matrix in, permuted Matrix Market matrix out."""
     if not is_matrix_market_name(out):
         raise InputError(f"{out}: a matrix is written as Matrix Market: name the output .mtx")
@@ -279,7 +285,8 @@ def _renumber_matrix(source: Path, out: Path, node_map: Path, methods: str, obje
     if data.n_rows < 2:
         raise InputError(f"{source}: the matrix has {data.n_rows} row: nothing to renumber")
     graph = graph_from_matrix(data.matrix)
-    comp, timing = timed_comparison(graph, methods, objective, 1, options, progress)
+    comp, timing = timed_comparison(graph, methods, objective, 1, options, progress,
+                                    effort=effort)
     perm = comp.best.perm
     with step(progress, "writing the matrix"):
         write_matrix_market(out, data.matrix, perm, field=data.field,
@@ -296,7 +303,7 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
                    file_format: str | None, output_format: str | None,
                    dofs_per_node: int | None, physics: str | None, element_order: bool,
                    supports: tuple[Support, ...], dof_map: str | os.PathLike[str] | None,
-                   analyse: bool, fail_on: str) -> RenumberResult:
+                   analyse: bool, fail_on: str, effort: str) -> RenumberResult:
     """Mesh in, renumbered mesh out (same format unless told otherwise)."""
     if output_format is not None or not same_extension(source, out):
         _check_writable_format(out, output_format)
@@ -317,7 +324,8 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     fmt = _output_format(source, out, model.file_format, output_format)
     # what the output will be and lose, decided (or refused) before the orderings run
     plan: OutputPlan | None = None if deck is not None else plan_output(model, out, fmt)
-    comp, timing = timed_comparison(graph, methods, objective, layout, options, progress)
+    comp, timing = timed_comparison(graph, methods, objective, layout, options, progress,
+                                    effort=effort)
     perm = comp.best.perm
     file_supports = None if deck is None else deck_support_set(deck, layout)
     with step(progress, "numbering equations"):

@@ -85,7 +85,8 @@ def _method_of(label: str, names: set[str]) -> str | None:
 def timed_comparison(graph: NodeGraph, methods: str | Sequence[str] = "auto",
                      objective: str = "profile", dofs: int | DofLayout = 1,
                      options: dict[str, dict[str, Any]] | None = None,
-                     progress: Progress | None = None) -> tuple[Comparison, ComparisonTime]:
+                     progress: Progress | None = None, *,
+                     effort: str = "fast") -> tuple[Comparison, ComparisonTime]:
     """:func:`~bandwise.algorithms.orderings.compare.compare_orderings`, and the wall time it took.
 
     Arguments are those of ``compare_orderings``; ``progress`` still receives
@@ -93,7 +94,8 @@ def timed_comparison(graph: NodeGraph, methods: str | Sequence[str] = "auto",
     """
     clock = _StepClock(progress)
     t0 = time.perf_counter()
-    comparison = compare_orderings(graph, methods, objective, dofs, options, clock)
+    comparison = compare_orderings(graph, methods, objective, dofs, options, clock,
+                                   effort=effort)
     total = time.perf_counter() - t0
     names = {r.method for r in comparison.rows}
     by_method: dict[str, float] = {}

@@ -258,6 +258,8 @@ def comparison_text(comp: Comparison, level: str, timing: ComparisonTime | None 
         lines.append(f"Cholesky fill {comp.fill_note}")
     for name, why in comp.skipped.items():
         lines.append(f"not tried: {name}: {why}")
+    for name, why in comp.cut_short.items():
+        lines.append(f"cut short: {name}: {why}")
     return "\n".join(lines)
 
 

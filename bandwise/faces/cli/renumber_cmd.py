@@ -10,7 +10,7 @@ from typing import Annotated
 
 import typer
 
-from bandwise.algorithms.orderings.compare import OBJECTIVES
+from bandwise.algorithms.orderings.compare import EFFORTS, OBJECTIVES
 from bandwise.core.progress import StderrProgress
 from bandwise.workflows import renumber_file
 
@@ -53,6 +53,10 @@ def renumber(
     support: SupportOpt = None,
     support_file: SupportFileOpt = None,
     dof_map: DofMapOpt = None,
+    effort: Annotated[str, typer.Option(
+        "--effort", help=f"Time traded for a smaller matrix: {' | '.join(EFFORTS)}; fast tries "
+                         "the cheap orderings and refines small meshes, thorough tries every "
+                         "ordering and refines longest.")] = "fast",
 ) -> None:
     """Renumber the nodes: try orderings, keep the best, write the mesh and the node map.
 
@@ -66,7 +70,7 @@ def renumber(
         supports_file=support_file, map_path=map_path, element_order=element_order,
         sloan_weights=sloan_weights, file_format=file_format, output_format=output_format,
         dofs_per_node=dofs_per_node, physics=physics, replace_input=replace_input,
-        dof_map=dof_map, analyse=report_dir is not None, progress=StderrProgress())
+        dof_map=dof_map, effort=effort, analyse=report_dir is not None, progress=StderrProgress())
     for note in result.losses:
         typer.echo(f"bandwise: note: {format_note(result.output, note)}", err=True)
     write_report_option(report_dir, result)

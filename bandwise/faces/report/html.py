@@ -547,6 +547,12 @@ def comparison_section(doc: Mapping[str, Any], figures_html: str) -> str:
         notes.append(f"<li>Cholesky fill: {esc(comp['fill'])}.</li>")
     for name, why in (comp.get("skipped") or {}).items():
         notes.append(f"<li>Not tried: <strong>{esc(name)}</strong>: {esc(why)}.</li>")
+    for name, why in (comp.get("cut_short") or {}).items():
+        notes.append(f"<li>Cut short: <strong>{esc(name)}</strong>: {esc(why)}.</li>")
+    if comp.get("effort"):
+        notes.append(f"<li>Effort: <strong>{esc(comp['effort'])}</strong> (time traded for "
+                     "a smaller matrix; <code>--effort thorough</code> tries every ordering "
+                     "and refines longest).</li>")
     if notes:
         out.append("<ul>" + "".join(notes) + "</ul>")
     out += [figures_html, "</section>"]
