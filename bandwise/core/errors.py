@@ -25,10 +25,15 @@ class InputError(BandwiseError):
     """An option or argument is out of range or inconsistent."""
 
 
-def one_line(exc: BaseException, limit: int = 160) -> str:
+def one_line(exc: BaseException, limit: int = 160, *, named: bool = False) -> str:
     """An exception's message on one line (white space folded), cut to ``limit`` characters.
 
-    Empty when the exception carries no message: callers decide what to say then.
+    With ``named`` the exception's type leads (``ValueError: ...``), and stands
+    alone when there is no message; otherwise an exception without a message
+    gives an empty string and the caller decides what to say.
     """
     text = " ".join(str(exc).split())
-    return text if len(text) <= limit else text[: limit - 3] + "..."
+    text = text if len(text) <= limit else text[: limit - 3] + "..."
+    if not named:
+        return text
+    return f"{type(exc).__name__}: {text}" if text else type(exc).__name__

@@ -337,7 +337,7 @@ def _registry() -> tuple[dict[str, OrderingInfo], dict[str, str]]:
             try:
                 importlib.import_module(f"{orderings.__name__}.{mod.name}")
             except Exception as exc:  # noqa: BLE001 - reported, the others still run
-                broken[mod.name] = f"module could not be loaded: {_one_line(exc)}"
+                broken[mod.name] = f"module could not be loaded: {one_line(exc, named=True)}"
     return ORDERINGS, broken
 
 
@@ -349,12 +349,6 @@ def _dof_arg(dofs: int | DofLayout) -> int | NDArray[np.int64]:
     return int(dofs)
 
 
-def _one_line(exc: BaseException) -> str:
-    """The exception's name and message on one line (an ordering's failure in its row)."""
-    text = one_line(exc, limit=10_000)
-    return f"{type(exc).__name__}: {text}" if text else type(exc).__name__
-
-
 def _candidate(graph: NodeGraph, method: str, order: Callable[[], NDArray[np.integer]],
                dofs: int | DofLayout, fill: Callable[..., int] | None) -> OrderingResult:
     """Run one ordering, time it, and measure what it gives (errors become a row)."""
@@ -363,7 +357,7 @@ def _candidate(graph: NodeGraph, method: str, order: Callable[[], NDArray[np.int
         perm = check_permutation(order(), graph.n)
     except Exception as exc:  # noqa: BLE001 - a failing method is reported, not raised
         return OrderingResult(method, None, None, None, None, time.perf_counter() - t0,
-                              error=_one_line(exc))
+                              error=one_line(exc, named=True))
     seconds = time.perf_counter() - t0 if method != ORIGINAL else 0.0
     node_level = metrics(graph, perm)
     dof_level = metrics(graph, perm, dofs=dofs) if not _is_one(dofs) else node_level
@@ -373,7 +367,7 @@ def _candidate(graph: NodeGraph, method: str, order: Callable[[], NDArray[np.int
             nnz = int(fill(graph, perm, _dof_arg(dofs)))
         except Exception as exc:  # noqa: BLE001 - reported on the row
             return OrderingResult(method, perm, node_level, dof_level, None, seconds,
-                                  error=f"Cholesky count failed: {_one_line(exc)}")
+                                  error=f"Cholesky count failed: {one_line(exc, named=True)}")
     return OrderingResult(method, perm, node_level, dof_level, nnz, seconds)
 
 
@@ -529,7 +523,7 @@ def _with_fill(graph: NodeGraph, row: OrderingResult, dofs: int | DofLayout,
         nnz = int(fill(graph, row.perm, _dof_arg(dofs)))
     except Exception as exc:  # noqa: BLE001 - reported on the row
         return OrderingResult(row.method, row.perm, row.nodes, row.dofs, None, row.seconds,
-                              row.improvement, f"Cholesky count failed: {_one_line(exc)}")
+                              row.improvement, f"Cholesky count failed: {one_line(exc, named=True)}")
     return OrderingResult(row.method, row.perm, row.nodes, row.dofs, nnz, row.seconds,
                           row.improvement, row.error)
 
