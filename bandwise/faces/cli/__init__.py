@@ -20,6 +20,7 @@ from bandwise import __version__
 from bandwise.core.caution import CAUTION  # noqa: F401  (re-exported to the command modules)
 from bandwise.core.dofs import PHYSICS
 from bandwise.core.errors import BandwiseError
+from bandwise.core.jsonable import json_default
 
 app = typer.Typer(
     name="bandwise",
@@ -69,19 +70,7 @@ def guarded(func: Callable[..., Any]) -> Callable[..., Any]:
 
 def emit_json(data: dict[str, Any]) -> None:
     """Write one JSON document on stdout."""
-    sys.stdout.write(json.dumps(data, indent=2, default=_json_default) + "\n")
-
-
-def _json_default(obj: Any) -> Any:
-    import numpy as np
-
-    if isinstance(obj, np.integer):
-        return int(obj)
-    if isinstance(obj, np.floating):
-        return float(obj)
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
+    sys.stdout.write(json.dumps(data, indent=2, default=json_default) + "\n")
 
 
 FormatOpt = Annotated[str | None, typer.Option(
