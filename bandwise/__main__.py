@@ -2,4 +2,5 @@
 
 from bandwise.faces.cli import main
 
-main()
+if __name__ == "__main__":  # not again in the worker processes a local cluster spawns
+    main()

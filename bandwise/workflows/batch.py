@@ -24,14 +24,17 @@ each worker holds a fixed amount of.
 Faults
 ------
 - A worker that dies during a task (killed, out of memory, a fault in a
-  compiled library) has the task handed to another worker by the
-  scheduler.  The local cluster's scheduler fails a task after its workers
-  died ``allowed_failures + 1`` times (2 by default): that file gets an
-  error, and the batch goes on.  (An existing scheduler applies its own
-  ``distributed.scheduler.allowed-failures``, 3 unless configured.)
+  compiled library) fails every task it held at once: the local cluster's
+  scheduler allows no failure (``allowed_failures=0``).  Those files are
+  run again at the end, each alone on the cluster, so that a file is not
+  blamed for its neighbour's crash; a file whose worker dies again, alone,
+  gets an error, and the batch goes on.  A file thus crashes workers
+  twice at most.  An existing scheduler applies its own
+  ``distributed.scheduler.allowed-failures`` (3 unless configured: Dask
+  retries the task itself, and a file killed that often gets an error);
+  bandwise adds its lone retry only where that setting is 0.
 - No more tasks are in flight than the workers have threads, so that a
-  worker's death implicates the task it was running and not a queue of
-  tasks waiting behind it.
+  worker's death strikes few tasks that were only waiting.
 - A file that cannot be read, or whose task raises, gets an error entry;
   one bad file never costs the others.
 - With a results file, every finished file is one line appended with a
@@ -75,15 +78,16 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from bandwise.core.errors import BandwiseError, InputError, MeshReadError, MeshWriteError
+from bandwise.core.errors import InputError, MeshReadError, MeshWriteError, one_line
 from bandwise.core.jsonable import json_default
 from bandwise.core.memory import BASELINE_BYTES, available_bytes, file_estimate
 from bandwise.core.tables import human_bytes
 
 #: Name of the Dask resource each task declares: its estimated peak memory, in bytes.
 MEMORY = "MEMORY"
-#: Worker deaths a task may cause and still be retried, on the local cluster.
-ALLOWED_FAILURES = 1
+#: Worker deaths a task may be present at and still be retried by the local cluster's
+#: scheduler: none, bandwise retries such files itself, each alone (see the module notes).
+ALLOWED_FAILURES = 0
 #: Peak bytes of ``bandwise check`` per byte of file when the header gives no counts, by the
 #: reader a file goes to (keyword and bulk-data decks keep their text; other formats through
 #: meshio).  Measured on a 216,000-node tetrahedral box, rounded up:
@@ -406,7 +410,7 @@ class BatchProgress:
     errors: int
     skipped: int
     elapsed: float
-    where: str
+    where: str  # "in this process", "on a local cluster of 2 worker processes" ... ("": nowhere)
     last: FileOutcome | None = None
 
     @property
@@ -442,10 +446,22 @@ class BatchResult:
 
 @dataclass(frozen=True)
 class CheckTask:
-    """``check_file`` on one path, with the same supports and options for every file."""
+    """:func:`~bandwise.workflows.check.check_file` on one path, the same options for every file.
+
+    ``options`` are ``check_file``'s keywords (``fail_on``, ``tolerance``,
+    ``supports_file`` ...).  Options that are wrong for every file (the gate,
+    the supports) are refused when the task is made, before any file is sent.
+    """
 
     supports: tuple[Any, ...] = ()
     options: dict[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        from bandwise.algorithms.checks.verdict import check_fail_on
+        from bandwise.workflows.supports import support_list
+
+        check_fail_on(self.options.get("fail_on", "error"))
+        support_list(self.supports, self.options.get("supports_file"))
 
     def __call__(self, path: str) -> Any:
         from bandwise.workflows.check import check_file
@@ -455,7 +471,8 @@ class CheckTask:
 
 @dataclass(frozen=True)
 class RenumberTask:
-    """``renumber_file`` from one path to its place in ``outputs`` (see :func:`output_paths`)."""
+    """:func:`~bandwise.workflows.renumber.renumber_file` from one path to its place in
+    ``outputs`` (:func:`output_paths`; the node map goes beside each output)."""
 
     outputs: dict[str, str]
     method: str = "auto"
@@ -463,11 +480,29 @@ class RenumberTask:
     supports: tuple[Any, ...] = ()
     options: dict[str, Any] = field(default_factory=dict)
 
+    def __post_init__(self) -> None:
+        from bandwise.algorithms.orderings.compare import EFFORTS, OBJECTIVES
+        from bandwise.workflows.renumber import sloan_options
+        from bandwise.workflows.supports import support_list
+
+        if self.objective not in OBJECTIVES:
+            raise InputError(f"unknown objective {self.objective!r}; valid: "
+                             f"{', '.join(OBJECTIVES)}")
+        effort = self.options.get("effort", "fast")
+        if effort not in EFFORTS:
+            raise InputError(f"unknown effort {effort!r}; valid: {', '.join(EFFORTS)}")
+        sloan_options(self.options.get("sloan_weights"))
+        support_list(self.supports, self.options.get("supports_file"))
+
     def __call__(self, path: str) -> Any:
         from bandwise.workflows.renumber import renumber_file
 
         dst = Path(self.outputs[path])
-        dst.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            dst.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise MeshWriteError(f"{dst.parent}: cannot make the folder: {exc.strerror}") \
+                from None
         return renumber_file(path, dst, method=self.method, objective=self.objective,
                              supports=self.supports, **self.options)
 
@@ -480,6 +515,8 @@ def run_one(task: Callable[[str], Any], path: str) -> dict[str, Any]:
     other failure of the task: never raised, so that one file never costs
     the others).
     """
+    from bandwise.workflows.check import file_failure
+
     t0 = time.perf_counter()
     worker = f"{socket.gethostname()}:{os.getpid()}"
     try:
@@ -487,18 +524,9 @@ def run_one(task: Callable[[str], Any], path: str) -> dict[str, Any]:
         entry = result.to_dict() if hasattr(result, "to_dict") else dict(result)
         entry = json.loads(json.dumps(entry, default=json_default))
         return {"entry": entry, "seconds": time.perf_counter() - t0, "worker": worker}
-    except BandwiseError as exc:
-        error = _one_line(str(exc))
-    except MemoryError:
-        error = f"{path}: out of memory"
     except Exception as exc:  # noqa: BLE001  any failure is this file's, not the batch's
-        error = _one_line(f"{path}: internal error: {type(exc).__name__}: {exc}")
+        error = file_failure(path, exc).error
     return {"error": error, "seconds": time.perf_counter() - t0, "worker": worker}
-
-
-def _one_line(text: str, limit: int = 1000) -> str:
-    text = " ".join(text.split())
-    return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
 def _outcome(file: str, digest: str | None, payload: dict[str, Any]) -> FileOutcome:
@@ -518,7 +546,7 @@ class _Recorder:
         self.total, self.skipped = total, skipped
         self.outcomes: dict[str, FileOutcome] = {}
         self.done = self.errors = 0
-        self.where = "this process"
+        self.where = "in this process"
         self.t0 = time.perf_counter()
 
     def start(self, where: str) -> None:
@@ -572,7 +600,8 @@ def run_batch(paths: Sequence[str | os.PathLike[str]], task: Callable[[str], Any
         ``MEMORY`` held by each local worker (default: the available memory
         divided among the workers).
     allowed_failures
-        Worker deaths a task may cause and still be retried (local cluster).
+        Worker deaths a task may be present at and still be retried by the
+        local cluster's scheduler (0: bandwise retries each such file alone).
     timeout
         Seconds to wait for an existing scheduler and its first worker.
 
@@ -619,7 +648,7 @@ def run_batch(paths: Sequence[str | os.PathLike[str]], task: Callable[[str], Any
         record = _Recorder(store, on_progress, len(todo) + len(unreadable), len(resumed))
         record.outcomes.update(resumed)
         if jobs is None and scheduler is None:
-            record.start("this process")
+            record.start("in this process")
             for outcome in unreadable:
                 record(outcome)
             for f, digest in todo:
@@ -629,7 +658,7 @@ def run_batch(paths: Sequence[str | os.PathLike[str]], task: Callable[[str], Any
                          estimate=estimate, memory_per_worker=memory_per_worker,
                          allowed_failures=allowed_failures, timeout=timeout)
         else:
-            record.start("nowhere: every file is in the results file already")
+            record.start("")
         dropped = store is not None and store.dropped_torn_line
     return BatchResult(tuple(record.outcomes[f] for f in files), record.where,
                        time.perf_counter() - t0, dropped)
@@ -637,8 +666,9 @@ def run_batch(paths: Sequence[str | os.PathLike[str]], task: Callable[[str], Any
 
 def _where(jobs: int | None, scheduler: str | None, workers: int = 0, threads: int = 0) -> str:
     if scheduler is None:
-        return f"a local cluster of {jobs} worker process{'es' if jobs != 1 else ''}"
-    return f"the scheduler at {scheduler} ({workers} workers, {threads} threads)"
+        return f"on a local cluster of {jobs} worker process{'es' if jobs != 1 else ''}"
+    return (f"on the scheduler at {scheduler} ({workers} worker{'s' if workers != 1 else ''}, "
+            f"{threads} thread{'s' if threads != 1 else ''})")
 
 
 @contextlib.contextmanager
@@ -667,7 +697,7 @@ def _client(jobs: int | None, scheduler: str | None, memory_per_worker: int | No
                                                 set_as_default=False))
         except (OSError, TimeoutError, ValueError) as exc:
             raise InputError(f"cannot reach the Dask scheduler at {scheduler}: "
-                             f"{_one_line(str(exc), 200)}") from None
+                             f"{one_line(exc, 200)}") from None
         try:
             client.wait_for_workers(1, timeout=timeout)
         except (OSError, TimeoutError):
@@ -690,43 +720,63 @@ def _run_on_dask(todo: list[tuple[str, str | None]], unreadable: list[FileOutcom
         record.start(_where(jobs, scheduler, len(held), slots))
         for outcome in unreadable:
             record(outcome)
-        queue = iter(todo)
         running: dict[str, tuple[str, str | None]] = {}
         pending = as_completed(loop=client.loop)
 
-        def submit_next() -> bool:
-            for f, digest in queue:
-                resources = None
-                if largest is not None:
-                    need = estimate(f)
-                    if need is not None and need > largest:
-                        record(FileOutcome(f, digest, error=(
-                            f"{f}: needs about {human_bytes(need)} of memory; the largest "
-                            f"worker holds {human_bytes(largest)} (fewer --jobs give each "
-                            "local worker more)")))
-                        continue
-                    resources = None if need is None else {MEMORY: float(need)}
-                future = client.submit(run_one, task, f, key=f"bandwise-{uuid.uuid4().hex}",
-                                       resources=resources, pure=False)
-                running[future.key] = (f, digest)
-                pending.add(future)
-                return True
-            return False
+        def submit(f: str, digest: str | None) -> bool:
+            """Send one file (False: refused, its estimate fits no worker)."""
+            resources = None
+            if largest is not None:
+                need = estimate(f)
+                if need is not None and need > largest:
+                    record(FileOutcome(f, digest, error=(
+                        f"{f}: needs about {human_bytes(need)} of memory; the largest worker "
+                        f"holds {human_bytes(largest)} (fewer --jobs give each local worker "
+                        "more)")))
+                    return False
+                resources = None if need is None else {MEMORY: float(need)}
+            future = client.submit(run_one, task, f, key=f"bandwise-{uuid.uuid4().hex}",
+                                   resources=resources, pure=False)
+            running[future.key] = (f, digest)
+            pending.add(future)
+            return True
 
-        for _ in range(slots):
-            if not submit_next():
-                break
-        for future in pending:
+        def outcome(future: Any, second: bool) -> tuple[str, str | None, FileOutcome | None]:
+            """The file and its outcome; None when a worker's death makes it a suspect."""
             f, digest = running.pop(future.key)
             try:
                 payload = future.result()
-            except KilledWorker:
-                payload = {"error": f"{f}: the worker process died each time it worked on "
-                                    "this file (killed for memory, or a crash in a compiled "
+            except KilledWorker as exc:
+                if not second and exc.allowed_failures == 0:
+                    return f, digest, None
+                alone = " the last time with no other file running," if second else ""
+                payload = {"error": f"{f}: the worker process died each time it worked on this "
+                                    f"file,{alone} (killed for memory, or a crash in a compiled "
                                     "library); not retried again"}
             except Exception as exc:  # noqa: BLE001  the task's transport failed, not the batch
-                payload = {"error": _one_line(f"{f}: {type(exc).__name__}: {exc}")}
+                payload = {"error": f"{f}: {type(exc).__name__}: {one_line(exc)}"}
             finally:
                 future.release()
-            record(_outcome(f, digest, payload))
-            submit_next()
+            return f, digest, _outcome(f, digest, payload)
+
+        queue = iter(todo)
+        suspects: list[tuple[str, str | None]] = []
+        in_flight = 0
+        while True:  # at most as many files in flight as the workers have threads
+            while in_flight < slots:
+                item = next(queue, None)
+                if item is None:
+                    break
+                in_flight += submit(*item)
+            if not in_flight:
+                break
+            future = next(pending)
+            in_flight -= 1
+            f, digest, got = outcome(future, second=False)
+            if got is None:
+                suspects.append((f, digest))
+            else:
+                record(got)
+        for f, digest in suspects:  # alone on the cluster: a neighbour's crash is not its own
+            if submit(f, digest):
+                record(outcome(next(pending), second=True)[2])

@@ -327,11 +327,15 @@ def check_files(paths: Iterable[str | os.PathLike[str]], **options: Any
     for path in paths:
         try:
             out.append(check_file(path, **options))
-        except BandwiseError as exc:
-            out.append(FileFailure(str(path), one_line(exc) or type(exc).__name__))
-        except MemoryError:
-            out.append(FileFailure(str(path), "out of memory"))
         except Exception as exc:  # one bad file never costs the others
-            out.append(FileFailure(str(path), f"internal error: {type(exc).__name__}: "
-                                              f"{one_line(exc)}"))
+            out.append(file_failure(path, exc))
     return out
+
+
+def file_failure(path: str | os.PathLike[str], exc: Exception) -> FileFailure:
+    """The :class:`FileFailure` of a file whose work raised ``exc`` (a batch goes on)."""
+    if isinstance(exc, BandwiseError):
+        return FileFailure(str(path), one_line(exc) or type(exc).__name__)
+    if isinstance(exc, MemoryError):
+        return FileFailure(str(path), "out of memory")
+    return FileFailure(str(path), f"internal error: {type(exc).__name__}: {one_line(exc)}")

@@ -86,10 +86,13 @@ class BatchBar:
     def __call__(self, p: BatchProgress) -> None:
         self.last = p
         if p.last is None:
-            skipped = (f"; {p.skipped} already in the results file, skipped"
-                       if p.skipped else "")
+            skipped = f"{p.skipped} file{'s' if p.skipped != 1 else ''} already in the " \
+                      "results file, skipped"
+            if not p.total:
+                self._line(f"bandwise: {skipped}; nothing left to run")
+                return
             self._line(f"bandwise: {self.what} {p.total} file{'s' if p.total != 1 else ''} "
-                       f"on {p.where}{skipped}")
+                       f"{p.where}" + (f"; {skipped}" if p.skipped else ""))
             return
         tally = f"{p.done}/{p.total} files"
         if p.errors:
@@ -206,7 +209,8 @@ def _tally(result: BatchResult) -> str:
     parts = [f"{n} file{'s' if n != 1 else ''}: {n - errors} worked on, {errors} could not be"]
     if result.skipped:
         parts.append(f"{result.skipped} taken from the results file")
-    parts.append(f"{ran} run on {result.where} in {_clock(result.seconds)}")
+    if ran:
+        parts.append(f"{ran} run {result.where} in {_clock(result.seconds)}")
     return "; ".join(parts)
 
 

@@ -8,9 +8,11 @@ from typing import Annotated
 import typer
 
 from bandwise import __version__
-from bandwise.algorithms.checks.verdict import FAIL_ON, check_fail_on
+from bandwise.algorithms.checks.verdict import FAIL_ON, PROBLEMS, check_fail_on
 from bandwise.core.progress import StderrProgress
 from bandwise.workflows import CheckResult, FileFailure, check_files
+from bandwise.workflows.batch import BatchResult, CheckTask, expand_paths
+from bandwise.workflows.supports import support_list
 
 from . import (
     CAUTION,
@@ -24,6 +26,17 @@ from . import (
     emit_json,
     guarded,
 )
+from .batch_options import (
+    JobsOpt,
+    ResultsOpt,
+    SchedulerOpt,
+    batch_finished,
+    check_table,
+    is_batch,
+    refuse_in_batch,
+    run_cli_batch,
+)
+from .batch_options import exit_code as batch_exit_code
 from .options import DofMapOpt, StiffnessCheckOpt, SupportFileOpt, SupportOpt
 from .render import check_text, summary_line
 from .report_cmd import ReportOpt, check_report_option, write_report_option
@@ -45,8 +58,9 @@ CoordinatesOpt = Annotated[Path | None, typer.Option(
 @app.command()
 @guarded
 def check(
-    files: Annotated[list[Path], typer.Argument(help="Mesh or matrix files to check "
-                                                     "(read-only).")],
+    files: Annotated[list[Path], typer.Argument(
+        help="Mesh or matrix files to check (read-only), folders (searched for every "
+             "format bandwise reads) or quoted globs ('sweep/**/*.msh').")],
     file_format: FormatOpt = None,
     dofs_per_node: DofsOpt = None,
     physics: PhysicsOpt = None,
@@ -60,15 +74,35 @@ def check(
     dof_map: DofMapOpt = None,
     report_dir: ReportOpt = None,
     coordinates: CoordinatesOpt = None,
+    jobs: JobsOpt = None,
+    scheduler: SchedulerOpt = None,
+    results_file: ResultsOpt = None,
 ) -> None:
     """Size up and check meshes before a run: parts, orphans, coincident nodes, joints, elements.
 
     Also counts DOFs and measures bandwidth, profile, wavefront and memory.
     Exit code 1 when a finding at or above --fail-on is found, 2 when a file
-    could not be analysed (the others still are).
+    could not be analysed (the others still are).  With --jobs, --scheduler or
+    --results each file is a task on Dask; a summary table replaces the
+    per-file text.
     """
     check_fail_on(fail_on)
     check_report_option(report_dir)
+    files = expand_paths(files)
+    if is_batch(jobs, scheduler, results_file):
+        refuse_in_batch(report=report_dir, dof_map=dof_map, coordinates=coordinates)
+        task = CheckTask(supports=support_list(support or (), supports_file), options=dict(
+            file_format=file_format, dofs_per_node=dofs_per_node, physics=physics,
+            fail_on=fail_on, tolerance=tolerance, relative_tolerance=relative_tolerance,
+            stiffness_check=stiffness_check))
+        batch = run_cli_batch(files, task, "checking", jobs=jobs, scheduler=scheduler,
+                              results=results_file)
+        batch_finished(batch, check_table(batch), as_json,
+                       lambda: _batch_document(batch, fail_on), emit_json)
+        if not as_json:
+            typer.echo("")
+            typer.echo(CAUTION)
+        raise typer.Exit(batch_exit_code(batch, lambda e: e.get("verdict") == PROBLEMS))
     results = check_files(
         files, supports=support or (), supports_file=supports_file, file_format=file_format,
         dofs_per_node=dofs_per_node, physics=physics, fail_on=fail_on, tolerance=tolerance,
@@ -93,6 +127,13 @@ def check(
         for r in results:
             typer.echo(summary_line(r))
     raise typer.Exit(exit_code(results))
+
+
+def _batch_document(batch: BatchResult, fail_on: str) -> dict:
+    """``check --json`` of a batch: the same document, one entry per file in the order given."""
+    return {"bandwise_version": __version__, "caution": CAUTION, "fail_on": fail_on,
+            "meshes": [o.entry if o.ok else FileFailure(o.file, o.error or "").to_dict()
+                       for o in batch.outcomes]}
 
 
 def exit_code(results: list[CheckResult | FileFailure]) -> int:

@@ -10,21 +10,48 @@ from typing import Annotated
 
 import typer
 
+from bandwise import __version__
 from bandwise.algorithms.orderings.compare import EFFORTS, OBJECTIVES
+from bandwise.core.errors import InputError
 from bandwise.core.progress import StderrProgress
-from bandwise.workflows import renumber_file
+from bandwise.workflows import FileFailure, renumber_file
+from bandwise.workflows.batch import (
+    BatchResult,
+    RenumberTask,
+    expand_paths,
+    output_paths,
+)
+from bandwise.workflows.supports import support_list
 
 from . import CAUTION, DofsOpt, FormatOpt, JsonOpt, PhysicsOpt, app, emit_json, guarded
+from .batch_options import (
+    JobsOpt,
+    ResultsOpt,
+    SchedulerOpt,
+    batch_finished,
+    exit_code,
+    is_batch,
+    refuse_in_batch,
+    renumber_table,
+    run_cli_batch,
+)
 from .options import DofMapOpt, SupportFileOpt, SupportOpt
 from .render import format_note, renumber_text
 from .report_cmd import ReportOpt, check_report_option, write_report_option
+
+OutDirOpt = Annotated[Path | None, typer.Option(
+    "--out-dir", metavar="DIR",
+    help="Renumber every input (files, folders, quoted globs) into DIR, keeping each one's "
+         "path below the inputs' common folder, name and format, with its node map beside.")]
 
 
 @app.command()
 @guarded
 def renumber(
-    source: Annotated[Path, typer.Argument(metavar="IN", help="Mesh or matrix file (read-only).")],
-    out: Annotated[Path, typer.Argument(metavar="OUT", help="Renumbered mesh (or .mtx matrix).")],
+    paths: Annotated[list[Path], typer.Argument(
+        metavar="IN [OUT]", help="A mesh or matrix file (read-only) and the renumbered mesh "
+                                 "(or .mtx matrix) to write; with --out-dir, any number of "
+                                 "files, folders or quoted globs.")],
     objective: Annotated[str, typer.Option(
         "--objective", help=f"What to minimise: {' | '.join(OBJECTIVES)} (wavefront: RMS).")
     ] = "profile",
@@ -57,13 +84,42 @@ def renumber(
         "--effort", help=f"Time traded for a smaller matrix: {' | '.join(EFFORTS)}; fast tries "
                          "the cheap orderings and refines small meshes, thorough tries every "
                          "ordering and refines longest.")] = "fast",
+    out_dir: OutDirOpt = None,
+    jobs: JobsOpt = None,
+    scheduler: SchedulerOpt = None,
+    results_file: ResultsOpt = None,
 ) -> None:
     """Renumber the nodes: try orderings, keep the best, write the mesh and the node map.
 
     With supports, the held DOFs are set aside and the equations numbered in
     the new node order: the reduced system's figures are shown before and
-    after, and ``--dof-map`` writes the equation of every DOF.
+    after, and ``--dof-map`` writes the equation of every DOF.  With --out-dir,
+    every input is renumbered into DIR, each file a task (on Dask with --jobs
+    or --scheduler), and a summary table replaces the per-file text.
     """
+    if out_dir is not None:
+        refuse_in_batch(map=map_path, dof_map=dof_map, report=report_dir,
+                        replace_input=replace_input, output_format=output_format)
+        files = expand_paths(paths, exclude=[out_dir])
+        task = RenumberTask(
+            outputs=output_paths(files, out_dir), method=method, objective=objective,
+            supports=support_list(support or (), support_file), options=dict(
+                element_order=element_order, sloan_weights=sloan_weights, effort=effort,
+                file_format=file_format, dofs_per_node=dofs_per_node, physics=physics))
+        batch = run_cli_batch(files, task, "renumbering", jobs=jobs, scheduler=scheduler,
+                              results=results_file)
+        batch_finished(batch, renumber_table(batch), as_json, lambda: _batch_document(batch),
+                       emit_json)
+        if not as_json:
+            typer.echo("")
+            typer.echo(CAUTION)
+        raise typer.Exit(exit_code(batch, lambda entry: False))
+    if is_batch(jobs, scheduler, results_file):
+        raise InputError("a batch writes into a folder: name it with --out-dir")
+    if len(paths) != 2:
+        raise InputError(f"give IN and OUT, or --out-dir DIR for many inputs (got "
+                         f"{len(paths)} path{'s' if len(paths) != 1 else ''})")
+    source, out = paths
     check_report_option(report_dir)
     result = renumber_file(
         source, out, method=method, objective=objective, supports=support or (),
@@ -80,3 +136,10 @@ def renumber(
     typer.echo(renumber_text(result))
     typer.echo("")
     typer.echo(CAUTION)
+
+
+def _batch_document(batch: BatchResult) -> dict:
+    """``renumber --json`` of a batch: each file's document (or its error), in the order given."""
+    return {"bandwise_version": __version__, "caution": CAUTION,
+            "files": [o.entry if o.ok else FileFailure(o.file, o.error or "").to_dict()
+                      for o in batch.outcomes]}
