@@ -64,8 +64,13 @@ def timed(cmd: list[str], stdout: Path | None = None) -> dict:
         out.close()
     err.seek(0)
     lines = err.read().decode(errors="replace").strip().splitlines()
+    steps = {}
+    for line in lines:  # "bandwise: building node graph: 2.1 s" (steps over a second)
+        label, _, rest = line.removeprefix("bandwise: ").rpartition(": ")
+        if label and rest.endswith(" s") and rest[:-2].replace(".", "", 1).isdigit():
+            steps[label] = steps.get(label, 0.0) + float(rest[:-2])
     return {"seconds": seconds, "peak": usage.ru_maxrss * 1024, "code": proc.returncode,
-            "stderr": lines[-1] if lines else ""}
+            "stderr": lines[-1] if lines else "", "steps": steps}
 
 
 def box(nodes: int, cache: Path, suffix: str = ".vtu") -> tuple[Path, dict | None]:
@@ -96,7 +101,8 @@ def spread(runs: list[dict], key: str) -> tuple[float, str]:
     best = min(values)
     if len(values) == 1:
         return best, ""
-    return best, f" (up to {max(values) / best:.2f}x, median {statistics.median(values) / best:.2f}x)"
+    return best, (f" best of {len(values)}, up to {max(values) / best:.2f}x, median "
+                  f"{statistics.median(values) / best:.2f}x")
 
 
 def size_factors(nodes: int, cache: Path) -> None:
@@ -185,24 +191,42 @@ def main() -> None:
             rows[nodes] = row
             _print_row(nodes, row, args.method, header=len(rows) == 1)
         _print_targets(rows, sizes)
+        _print_steps(rows, sizes)
         refusal(args.refuse_nodes, tmp)
 
 
 def _print_row(nodes: int, row: dict, method: str, header: bool) -> None:
     if header:
         print(f"{'nodes':>12}{'estimate':>10}  {'check s':>9}{'check peak':>12}  "
-              f"{'renumber s':>11}{'renumber peak':>14}  (renumber --method {method})")
+              f"{'renumber s':>11}{'renumber peak':>14}  (renumber --method {method}; "
+              "time spread over the runs)")
     parts = [f"{row.get('n', nodes):>12,}", f"{row['estimate'] / GIB:>8.2f} G"]
-    for cmd in ("check", "renumber"):
+    notes = []
+    for cmd, width in (("check", (9, 12)), ("renumber", (11, 14))):
         runs = row.get(cmd)
         if not runs:
-            parts.append(f"{'-':>{23 if cmd == 'check' else 27}}")
+            parts.append(f"  {'-':>{width[0]}}{'-':>{width[1]}}")
             continue
         t, t_spread = spread(runs, "seconds")
         p, _ = spread(runs, "peak")
-        width = (9, 12) if cmd == "check" else (11, 14)
-        parts.append(f"  {t:>{width[0]}.1f}{p / GIB:>{width[1] - 2}.2f} G{t_spread}")
-    print("".join(parts), flush=True)
+        parts.append(f"  {t:>{width[0]}.1f}{p / GIB:>{width[1] - 2}.2f} G")
+        if t_spread:
+            notes.append(f"{cmd}{t_spread}")
+    print("".join(parts) + (f"  ({'; '.join(notes)})" if notes else ""), flush=True)
+
+
+def _print_steps(rows: dict, sizes: list[int]) -> None:
+    """Seconds of every step over a second (the fastest run of each size), to see which grows."""
+    for cmd in ("check", "renumber"):
+        best = {n: min(rows[n][cmd], key=lambda r: r["seconds"])["steps"]
+                for n in sizes if rows[n].get(cmd)}
+        labels = list(dict.fromkeys(k for steps in best.values() for k in steps))
+        if not labels:
+            continue
+        print(f"{cmd} steps over a second (s):")
+        for label in labels:
+            cells = "".join(f"{best[n].get(label, 0.0):>10.1f}" for n in best)
+            print(f"  {label[:44]:44}{cells}")
 
 
 def _print_targets(rows: dict, sizes: list[int]) -> None:
