@@ -172,8 +172,11 @@ def test_expand_paths_searches_folders_matches_globs_and_keeps_named_files(tmp_p
         [tmp_path / "a" / "one.msh"]
     # a named file is kept as given, even missing or of an unknown kind: its task says so
     kept = expand_paths([tmp_path / "a" / "notes.txt", tmp_path / "missing.msh",
-                         tmp_path / "a" / "notes.txt"])
-    assert kept == [tmp_path / "a" / "notes.txt", tmp_path / "missing.msh"]
+                         tmp_path / "a" / "notes.txt", tmp_path / "a" / "one.msh", tmp_path])
+    assert kept == [tmp_path / "a" / "notes.txt", tmp_path / "missing.msh",
+                    tmp_path / "a" / "notes.txt", tmp_path / "a" / "one.msh",
+                    tmp_path / "a" / "deep" / "two.vtu", tmp_path / "b.mtx", tmp_path / "c.inp",
+                    tmp_path / "out" / "renumbered.msh"]
 
 
 def test_expand_paths_refuses_a_folder_or_pattern_without_meshes(tmp_path):

@@ -154,8 +154,8 @@ def expand_paths(args: Iterable[str | os.PathLike[str]],
     Returns
     -------
     list of Path
-        In the order given, each folder's and pattern's files sorted, each
-        file once.
+        In the order given, each folder's and pattern's files sorted; a
+        search adds no file already there.
 
     Raises
     ------
@@ -163,16 +163,19 @@ def expand_paths(args: Iterable[str | os.PathLike[str]],
         A folder or pattern that yields no file.
     """
     skip = [Path(e) for e in exclude]
-    found: dict[str, Path] = {}
+    found: list[Path] = []
+    seen: set[str] = set()
     for arg in args:
         text = os.fspath(arg)
         path = Path(text)
+        if path.is_file() or (not path.exists() and not glob.has_magic(text)):
+            found.append(path)  # named: kept as given, even twice (a batch runs it once)
+            seen.add(os.path.abspath(path))
+            continue
         if path.is_dir():
             hits = _folder_files(path, skip)
             if not hits:
                 raise InputError(f"{text}: no mesh or matrix file in this folder or below")
-        elif path.exists() or not glob.has_magic(text):
-            hits = [path]
         else:
             hits = []
             for match in sorted(glob.glob(text, recursive=True)):
@@ -184,8 +187,10 @@ def expand_paths(args: Iterable[str | os.PathLike[str]],
             if not hits:
                 raise InputError(f"{text}: matches no mesh or matrix file")
         for h in hits:
-            found.setdefault(os.path.abspath(h), h)
-    return list(found.values())
+            if os.path.abspath(h) not in seen:
+                seen.add(os.path.abspath(h))
+                found.append(h)
+    return found
 
 
 def output_paths(inputs: Sequence[str | os.PathLike[str]], out_dir: str | os.PathLike[str]
