@@ -1,11 +1,12 @@
 """Benchmark: the single-machine limit: ``check`` and ``renumber`` on 1M, 3M and 10M nodes.
 
 Makes scrambled tetrahedral boxes of about each size (VTU, the format the
-streaming reader takes), caches them in ``--cache`` (writing the 10M box
+streaming reader takes; written by meshio alone, without the read-back
+check of bandwise's writer, to spare time and memory), caches them in ``--cache`` (writing the 10M box
 takes minutes), then runs the command line on each, every run a fresh
 process, and prints its wall time and peak resident memory (the kernel's
-high-water mark of that process, ``wait4``) beside the header estimate of
-:func:`bandwise.core.memory.file_estimate`.  Then:
+high-water mark of that process, ``wait4``) beside the estimate a task of
+the batch declares (:func:`bandwise.workflows.batch.task_memory`).  Then:
 
 - ``check`` time at the largest size against the smallest, as a ratio
   (target: at most 11x from 1M to 10M nodes);
@@ -44,10 +45,13 @@ GIB = 2**30
 
 MAKE = """
 import sys
-from bandwise.core.generate import nodes_for_tet_box, scrambled, tet_grid
-from bandwise.formats.meshio_io import write_model
+import meshio
+from bandwise.core.generate import scrambled, tet_grid
 k = int(sys.argv[1])
-write_model(scrambled(tet_grid(k, k, k), seed=1), sys.argv[2], sys.argv[3] if len(sys.argv) > 3 else None)
+model = scrambled(tet_grid(k, k, k), seed=1)
+mesh = meshio.Mesh(model.points, [(b.type, b.data) for b in model.cells])
+del model
+meshio.write(sys.argv[2], mesh, file_format=sys.argv[3])
 """
 
 
@@ -83,8 +87,8 @@ def box(nodes: int, cache: Path, suffix: str = ".vtu") -> tuple[Path, dict | Non
         return path, None
     cache.mkdir(parents=True, exist_ok=True)
     part = path.with_name(f".{path.name}.part{os.getpid()}{suffix}")  # renamed when whole
-    fmt = {".inp": "abaqus", ".bdf": "nastran"}.get(suffix)
-    made = timed([sys.executable, "-c", MAKE, str(k), str(part), *([fmt] if fmt else [])])
+    fmt = {".inp": "abaqus", ".bdf": "nastran", ".vtk": "vtk", ".vtu": "vtu"}[suffix]
+    made = timed([sys.executable, "-c", MAKE, str(k), str(part), fmt])
     if made["code"] != 0:
         part.unlink(missing_ok=True)
         raise SystemExit(f"making the {k}^3 box failed: {made['stderr']}")
@@ -120,7 +124,8 @@ def size_factors(nodes: int, cache: Path) -> None:
 
 def refusal(nodes: int, folder: Path) -> None:
     """A VTU file announcing ``nodes`` nodes (and holding none) is refused before reading."""
-    from bandwise.core.memory import available_bytes, file_estimate
+    from bandwise.core.memory import available_bytes
+    from bandwise.workflows.batch import task_memory
 
     path = folder / "announces_too_much.vtu"
     path.write_text('<?xml version="1.0"?>\n<VTKFile type="UnstructuredGrid" version="0.1">\n'
@@ -128,7 +133,7 @@ def refusal(nodes: int, folder: Path) -> None:
                     f'NumberOfCells="{6 * nodes}">\n</Piece></UnstructuredGrid></VTKFile>\n')
     r = timed(bandwise("check", str(path)))
     print(f"refusal: a VTU header announcing {nodes:,} nodes (estimate "
-          f"{file_estimate(path) / GIB:,.1f} GiB, {available_bytes() / GIB:,.1f} GiB available): "
+          f"{task_memory(path) / GIB:,.1f} GiB, {available_bytes() / GIB:,.1f} GiB available): "
           f"exit {r['code']} in {r['seconds']:.2f} s")
     print(f"  {r['stderr']}")
 
@@ -154,7 +159,7 @@ def main() -> None:
     if args.size_factors:
         size_factors(args.nodes, args.cache)
         return
-    from bandwise.core.memory import file_estimate
+    from bandwise.workflows.batch import task_memory
 
     sizes = [int(float(s)) for s in args.sizes.split(",")]
     with tempfile.TemporaryDirectory() as tmp:
@@ -170,7 +175,7 @@ def main() -> None:
                       f"{made['peak'] / GIB:.1f} GiB, {path.stat().st_size / 2**20:,.0f} MiB")
             path.read_bytes()  # in the file cache for every run alike
             repeat = args.repeat if nodes < 5_000_000 else 1
-            row = {"estimate": file_estimate(path)}
+            row = {"estimate": task_memory(path)}
             if "check" not in args.skip:
                 runs = [timed(bandwise("check", str(path), "--json"), tmp / "check.json")
                         for _ in range(repeat)]

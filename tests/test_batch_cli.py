@@ -19,7 +19,7 @@ import pytest
 from test_batch import loopback_cluster, reference_bandwidth  # noqa: F401  (a fixture)
 
 from bandwise.core.generate import scrambled, tet_grid
-from bandwise.formats.meshio_io import read_model, write_model
+from bandwise.formats import read_model, write_model
 
 
 def bandwise(*args: str, timeout: float = 240) -> subprocess.CompletedProcess:

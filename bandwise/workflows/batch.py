@@ -45,7 +45,7 @@ Faults
 Memory
 ------
 Each task declares its estimated peak memory (:func:`task_memory`, from
-the file's header counts: :func:`bandwise.core.memory.file_estimate`) as
+the file's header counts: :func:`bandwise.formats.headers.counts_estimate`) as
 the Dask resource ``MEMORY`` in bytes.  Local workers each hold the
 machine's available memory divided among them; workers of an existing
 cluster hold what they were started with (``dask worker --resources
@@ -78,9 +78,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from bandwise.core.errors import InputError, MeshReadError, MeshWriteError, one_line
+from bandwise.core.errors import InputError, MeshWriteError, one_line
 from bandwise.core.jsonable import json_default
-from bandwise.core.memory import BASELINE_BYTES, available_bytes, file_estimate
+from bandwise.core.memory import BASELINE_BYTES, available_bytes
 from bandwise.core.tables import human_bytes
 
 #: Name of the Dask resource each task declares: its estimated peak memory, in bytes.
@@ -101,18 +101,13 @@ SIZE_FACTORS = {"keyword": 32, "bulk": 11, None: 6}
 def is_input_file(path: str | os.PathLike[str]) -> bool:
     """True when a file's name says a format bandwise reads: a mesh, a deck or a matrix.
 
-    The formats floor decides (its extension table and the matrix file
-    names); a folder search keeps what this accepts.
+    The formats floor decides (its registry of mesh formats and the matrix
+    file names); a folder search keeps what this accepts.
     """
+    from bandwise.formats import registry
     from bandwise.formats.matrix_io import is_matrix_file
-    from bandwise.formats.meshio_io import detect_format, known_formats
 
-    if is_matrix_file(path):
-        return True
-    try:
-        return detect_format(path) in known_formats()
-    except MeshReadError:
-        return False
+    return is_matrix_file(path) or registry.by_extension(path) is not None
 
 
 def _folder_files(folder: Path, exclude: Sequence[Path]) -> list[Path]:
@@ -228,16 +223,18 @@ def sha256_of(path: str | os.PathLike[str]) -> str:
 def task_memory(path: str | os.PathLike[str]) -> int:
     """Estimated peak bytes of one file's task (what it declares as the ``MEMORY`` resource).
 
-    From the header's counts where the format gives them
-    (:func:`bandwise.core.memory.file_estimate`); otherwise the file's size
-    times its reader's factor (:data:`SIZE_FACTORS`), plus the loaded
-    libraries.
+    From the header's counts where the format gives them (gmsh, VTU:
+    :func:`bandwise.formats.headers.counts_estimate`, what the reader
+    refuses a file by); otherwise the file's size times its reader's factor
+    (:data:`SIZE_FACTORS`), plus the loaded libraries.
     """
+    from bandwise.formats import headers, registry
     from bandwise.formats.decks import deck_kind
 
-    estimate = file_estimate(path)
-    if estimate is not None:
-        return estimate
+    counts = registry.header_counts(path)
+    if counts is not None and counts.plausible:
+        fmt = registry.by_extension(path)
+        return headers.counts_estimate(counts, streamed=fmt is not None and fmt.name == "vtu")
     try:
         size = os.path.getsize(path)
     except OSError:
