@@ -163,7 +163,7 @@ def _publish(tmp: Path, target: Path, references: References) -> None:
         for item in companions:
             os.replace(item, folder / item.name)
     os.replace(main, target)
-    _fsync_folder(folder)
+    fsync_folder(folder)
     if companions:
         _finish_sweep(tmp, target, references)
 
@@ -191,7 +191,7 @@ def _fsync(path: Path) -> None:
         os.close(fd)
 
 
-def _fsync_folder(folder: Path) -> None:
+def fsync_folder(folder: Path) -> None:
     """Flush a folder's entries (the rename) to disk where the system allows it."""
     with contextlib.suppress(OSError):
         fd = os.open(folder, os.O_RDONLY)

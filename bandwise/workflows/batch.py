@@ -285,7 +285,9 @@ class ResultsFile:
             self.close()
             raise
         if created:
-            _fsync_folder(self.path.resolve().parent)
+            from bandwise.formats.atomic import fsync_folder
+
+            fsync_folder(self.path.resolve().parent)
         return self
 
     def _read_and_trim(self, fd: int) -> None:
@@ -334,16 +336,6 @@ class ResultsFile:
 
     def __exit__(self, *exc: object) -> None:
         self.close()
-
-
-def _fsync_folder(folder: Path) -> None:
-    """Make a new file's name durable (its folder's entry), where the system allows it."""
-    with contextlib.suppress(OSError):
-        fd = os.open(folder, os.O_RDONLY)
-        try:
-            os.fsync(fd)
-        finally:
-            os.close(fd)
 
 
 # --------------------------------------------------------------------------- values
