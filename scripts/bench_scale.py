@@ -5,8 +5,9 @@ streaming reader takes; written by meshio alone, without the read-back
 check of bandwise's writer, to spare time and memory), caches them in ``--cache`` (writing the 10M box
 takes minutes), then runs the command line on each, every run a fresh
 process, and prints its wall time and peak resident memory (the kernel's
-high-water mark of that process, ``wait4``) beside the estimate a task of
-the batch declares (:func:`bandwise.workflows.batch.task_memory`).  Then:
+high-water mark of that process, ``wait4``) beside the estimate the reader
+refuses a file by (:func:`bandwise.formats.headers.counts_estimate`, from the
+header's counts), as a ratio (the batch's ``PEAK_OVER_ESTIMATE``).  Then:
 
 - ``check`` time at the largest size against the smallest, as a ratio
   (target: at most 11x from 1M to 10M nodes);
@@ -71,6 +72,8 @@ def timed(cmd: list[str], stdout: Path | None = None) -> dict:
     steps = {}
     for line in lines:  # "bandwise: building node graph: 2.1 s" (steps over a second)
         label, _, rest = line.removeprefix("bandwise: ").rpartition(": ")
+        if label.startswith("reading tetbox_"):
+            label = "reading the mesh"
         if label and rest.endswith(" s") and rest[:-2].replace(".", "", 1).isdigit():
             steps[label] = steps.get(label, 0.0) + float(rest[:-2])
     return {"seconds": seconds, "peak": usage.ru_maxrss * 1024, "code": proc.returncode,
@@ -109,23 +112,35 @@ def spread(runs: list[dict], key: str) -> tuple[float, str]:
                   f"{statistics.median(values) / best:.2f}x")
 
 
-def size_factors(nodes: int, cache: Path) -> None:
-    """Peak growth of ``bandwise check`` per byte of file, for formats whose header has no counts."""
+def size_factors(nodes: int, cache: Path, method: str) -> None:
+    """Peak growth of ``check`` and ``renumber`` per byte of file, for formats whose header
+    gives no counts (batch.SIZE_FACTORS)."""
     base = timed([sys.executable, "-c", "import bandwise, meshio, scipy.sparse, numba"])["peak"]
-    print(f"loaded libraries: {base / 2**20:.0f} MiB")
-    print(f"{'file':34}{'file MiB':>10}{'peak MiB':>10}{'growth / file size':>20}")
-    for suffix in (".vtk", ".inp", ".bdf"):
-        path, _ = box(nodes, cache, suffix)
-        r = timed(bandwise("check", str(path)))
-        size = path.stat().st_size
-        print(f"{path.name:34}{size / 2**20:>10.1f}{r['peak'] / 2**20:>10.0f}"
-              f"{(r['peak'] - base) / size:>20.1f}")
+    print(f"loaded libraries: {base / 2**20:.0f} MiB; renumber --method {method}")
+    print(f"{'file':34}{'file MiB':>10}{'check peak':>12}{'per byte':>10}"
+          f"{'renumber peak':>15}{'per byte':>10}")
+    with tempfile.TemporaryDirectory() as tmp:
+        for suffix in (".vtk", ".inp", ".bdf"):
+            path, _ = box(nodes, cache, suffix)
+            size = path.stat().st_size
+            c = timed(bandwise("check", str(path)))
+            r = timed(bandwise("renumber", str(path), str(Path(tmp) / f"out{suffix}"),
+                               "--method", method))
+            print(f"{path.name:34}{size / 2**20:>10.1f}{c['peak'] / 2**20:>10.0f} M"
+                  f"{(c['peak'] - base) / size:>10.1f}{r['peak'] / 2**20:>13.0f} M"
+                  f"{(r['peak'] - base) / size:>10.1f}", flush=True)
+
+
+def _header_estimate(path: Path) -> int:
+    """The estimate the reader refuses a file by, from its header's counts."""
+    from bandwise.formats import headers, registry
+
+    return headers.counts_estimate(registry.header_counts(path), streamed=path.suffix == ".vtu")
 
 
 def refusal(nodes: int, folder: Path) -> None:
     """A VTU file announcing ``nodes`` nodes (and holding none) is refused before reading."""
     from bandwise.core.memory import available_bytes
-    from bandwise.workflows.batch import task_memory
 
     path = folder / "announces_too_much.vtu"
     path.write_text('<?xml version="1.0"?>\n<VTKFile type="UnstructuredGrid" version="0.1">\n'
@@ -133,7 +148,8 @@ def refusal(nodes: int, folder: Path) -> None:
                     f'NumberOfCells="{6 * nodes}">\n</Piece></UnstructuredGrid></VTKFile>\n')
     r = timed(bandwise("check", str(path)))
     print(f"refusal: a VTU header announcing {nodes:,} nodes (estimate "
-          f"{task_memory(path) / GIB:,.1f} GiB, {available_bytes() / GIB:,.1f} GiB available): "
+          f"{_header_estimate(path) / GIB:,.1f} GiB, {available_bytes() / GIB:,.1f} GiB "
+          "available): "
           f"exit {r['code']} in {r['seconds']:.2f} s")
     print(f"  {r['stderr']}")
 
@@ -153,14 +169,13 @@ def main() -> None:
     parser.add_argument("--refuse-nodes", type=int, default=200_000_000,
                         help="nodes announced by the file that must be refused")
     parser.add_argument("--size-factors", action="store_true",
-                        help="measure check's peak per byte of VTK, keyword and bulk-data files")
+                        help="measure check's and renumber's peak per byte of VTK, keyword "
+                             "and bulk-data files")
     parser.add_argument("--nodes", type=int, default=216_000, help="box for --size-factors")
     args = parser.parse_args()
     if args.size_factors:
-        size_factors(args.nodes, args.cache)
+        size_factors(args.nodes, args.cache, args.method)
         return
-    from bandwise.workflows.batch import task_memory
-
     sizes = [int(float(s)) for s in args.sizes.split(",")]
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
@@ -175,15 +190,18 @@ def main() -> None:
                       f"{made['peak'] / GIB:.1f} GiB, {path.stat().st_size / 2**20:,.0f} MiB")
             path.read_bytes()  # in the file cache for every run alike
             repeat = args.repeat if nodes < 5_000_000 else 1
-            row = {"estimate": task_memory(path)}
+            from bandwise.formats import registry
+
+            row = {"estimate": _header_estimate(path), "n": registry.header_counts(path).nodes}
             if "check" not in args.skip:
                 runs = [timed(bandwise("check", str(path), "--json"), tmp / "check.json")
                         for _ in range(repeat)]
-                doc = json.loads((tmp / "check.json").read_text())["meshes"][0]
-                row["n"] = doc["nodes"]
                 row["check"] = runs
                 if any(r["code"] not in (0, 1) for r in runs):
                     print(f"check failed on {path.name}: {runs[0]['stderr']}")
+                else:  # the whole mesh was analysed
+                    doc = json.loads((tmp / "check.json").read_text())["meshes"][0]
+                    assert doc["nodes"] == row["n"], (doc["nodes"], row["n"])
             if "renumber" not in args.skip:
                 out = tmp / "renumbered.vtu"
                 runs = [timed(bandwise("renumber", str(path), str(out), "--method", args.method))
@@ -215,8 +233,8 @@ def _print_row(nodes: int, row: dict, method: str, header: bool) -> None:
         t, t_spread = spread(runs, "seconds")
         p, _ = spread(runs, "peak")
         parts.append(f"  {t:>{width[0]}.1f}{p / GIB:>{width[1] - 2}.2f} G")
-        if t_spread:
-            notes.append(f"{cmd}{t_spread}")
+        notes.append(f"{cmd} peak {p / row['estimate']:.2f}x the estimate{t_spread and ','}"
+                     f"{t_spread}")
     print("".join(parts) + (f"  ({'; '.join(notes)})" if notes else ""), flush=True)
 
 

@@ -203,14 +203,17 @@ def test_output_paths_mirror_the_inputs_below_their_common_folder(tmp_path):
 
 def test_task_memory_from_the_header_or_the_file_size(meshes):
     from bandwise.core.memory import BASELINE_BYTES, estimate_bytes
+    from bandwise.workflows.batch import PEAK_OVER_ESTIMATE, SIZE_FACTORS, CheckTask, RenumberTask
 
     _, good, bad = meshes
     msh = good[0]
     model = read_model(msh)                               # the header's counts, cells of 4 nodes
-    assert task_memory(msh) == estimate_bytes(model.n_nodes, {"unknown": model.n_cells}) \
-        > BASELINE_BYTES
+    low = estimate_bytes(model.n_nodes, {"unknown": model.n_cells})
+    assert low > BASELINE_BYTES
+    assert CheckTask().memory(str(msh)) == int(PEAK_OVER_ESTIMATE["check"] * low)
+    assert RenumberTask({}).memory(str(msh)) == int(PEAK_OVER_ESTIMATE["renumber"] * low)
     vtk = next(p for p in good if p.suffix == ".vtk")          # no counts in a legacy VTK header
-    assert task_memory(vtk) == BASELINE_BYTES + 6 * vtk.stat().st_size
+    assert task_memory(vtk) == BASELINE_BYTES + SIZE_FACTORS["check"][None] * vtk.stat().st_size
 
 
 # --------------------------------------------------------------------------- results file

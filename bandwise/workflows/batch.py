@@ -44,9 +44,13 @@ Faults
 
 Memory
 ------
-Each task declares its estimated peak memory (:func:`task_memory`, from
-the file's header counts: :func:`bandwise.formats.headers.counts_estimate`) as
-the Dask resource ``MEMORY`` in bytes.  Local workers each hold the
+Each task declares its estimated peak memory (:func:`task_memory`) as the
+Dask resource ``MEMORY`` in bytes: the estimate the reader refuses a file
+by (:func:`bandwise.formats.headers.counts_estimate`, from the header's
+counts; it errs low on purpose) times the measured ratio of the command's
+peak to it (:data:`PEAK_OVER_ESTIMATE`), or, for formats whose header
+gives no counts, the file's size times a measured factor
+(:data:`SIZE_FACTORS`).  Local workers each hold the
 machine's available memory divided among them; workers of an existing
 cluster hold what they were started with (``dask worker --resources
 MEMORY=16e9``).  A worker runs tasks at once only while their estimates
@@ -88,11 +92,18 @@ MEMORY = "MEMORY"
 #: Worker deaths a task may be present at and still be retried by the local cluster's
 #: scheduler: none, bandwise retries such files itself, each alone (see the module notes).
 ALLOWED_FAILURES = 0
-#: Peak bytes of ``bandwise check`` per byte of file when the header gives no counts, by the
+#: Measured peak memory of each command over the header estimate of its file (which leaves
+#: out the checks' facet table, and assumes a node degree of 6 where a tetrahedral mesh has
+#: about 14), rounded up from scrambled tetrahedral boxes of 1M, 3M and 10M nodes:
+#: ``python scripts/bench_scale.py`` (check 2.1x to 2.4x; renumber 2.7x to 3.3x, RCM or
+#: every ordering).
+PEAK_OVER_ESTIMATE = {"check": 2.5, "renumber": 3.5}
+#: Peak bytes of each command per byte of file when the header gives no counts, by the
 #: reader a file goes to (keyword and bulk-data decks keep their text; other formats through
 #: meshio).  Measured on a 216,000-node tetrahedral box, rounded up:
 #: ``python scripts/bench_scale.py --size-factors``.
-SIZE_FACTORS = {"keyword": 32, "bulk": 11, None: 6}
+SIZE_FACTORS = {"check": {"keyword": 32, "bulk": 11, None: 6},
+                "renumber": {"keyword": 52, "bulk": 24, None: 7}}
 
 
 # --------------------------------------------------------------------------- inputs
@@ -220,12 +231,13 @@ def sha256_of(path: str | os.PathLike[str]) -> str:
         return hashlib.file_digest(fh, "sha256").hexdigest()
 
 
-def task_memory(path: str | os.PathLike[str]) -> int:
+def task_memory(path: str | os.PathLike[str], command: str = "check") -> int:
     """Estimated peak bytes of one file's task (what it declares as the ``MEMORY`` resource).
 
     From the header's counts where the format gives them (gmsh, VTU:
     :func:`bandwise.formats.headers.counts_estimate`, what the reader
-    refuses a file by); otherwise the file's size times its reader's factor
+    refuses a file by, times :data:`PEAK_OVER_ESTIMATE` of ``command``);
+    otherwise the file's size times its reader's factor
     (:data:`SIZE_FACTORS`), plus the loaded libraries.
     """
     from bandwise.formats import headers, registry
@@ -234,12 +246,13 @@ def task_memory(path: str | os.PathLike[str]) -> int:
     counts = registry.header_counts(path)
     if counts is not None and counts.plausible:
         fmt = registry.by_extension(path)
-        return headers.counts_estimate(counts, streamed=fmt is not None and fmt.name == "vtu")
+        low = headers.counts_estimate(counts, streamed=fmt is not None and fmt.name == "vtu")
+        return int(PEAK_OVER_ESTIMATE[command] * low)
     try:
         size = os.path.getsize(path)
     except OSError:
         size = 0
-    return BASELINE_BYTES + SIZE_FACTORS[deck_kind(path)] * size
+    return BASELINE_BYTES + SIZE_FACTORS[command][deck_kind(path)] * size
 
 
 # --------------------------------------------------------------------------- results file
@@ -457,6 +470,10 @@ class CheckTask:
         check_fail_on(self.options.get("fail_on", "error"))
         support_list(self.supports, self.options.get("supports_file"))
 
+    def memory(self, path: str) -> int:
+        """Estimated peak bytes of this task on ``path`` (:func:`task_memory`)."""
+        return task_memory(path, "check")
+
     def __call__(self, path: str) -> Any:
         from bandwise.workflows.check import check_file
 
@@ -487,6 +504,10 @@ class RenumberTask:
             raise InputError(f"unknown effort {effort!r}; valid: {', '.join(EFFORTS)}")
         sloan_options(self.options.get("sloan_weights"))
         support_list(self.supports, self.options.get("supports_file"))
+
+    def memory(self, path: str) -> int:
+        """Estimated peak bytes of this task on ``path`` (:func:`task_memory`)."""
+        return task_memory(path, "renumber")
 
     def __call__(self, path: str) -> Any:
         from bandwise.workflows.renumber import renumber_file
@@ -565,7 +586,7 @@ def run_batch(paths: Sequence[str | os.PathLike[str]], task: Callable[[str], Any
               jobs: int | None = None, scheduler: str | None = None,
               results: str | os.PathLike[str] | None = None,
               on_progress: Callable[[BatchProgress], None] | None = None,
-              estimate: Callable[[str], int | None] = task_memory,
+              estimate: Callable[[str], int | None] | None = None,
               memory_per_worker: int | None = None,
               allowed_failures: int = ALLOWED_FAILURES,
               timeout: float = 60.0) -> BatchResult:
@@ -589,7 +610,9 @@ def run_batch(paths: Sequence[str | os.PathLike[str]], task: Callable[[str], Any
     on_progress
         Called when the work starts and after every file.
     estimate
-        Peak bytes of a file's task (the ``MEMORY`` resource it declares).
+        Peak bytes of a file's task (the ``MEMORY`` resource it declares);
+        default: the task's ``memory(path)`` where it has one, else
+        :func:`task_memory`.
     memory_per_worker
         ``MEMORY`` held by each local worker (default: the available memory
         divided among the workers).
@@ -617,6 +640,8 @@ def run_batch(paths: Sequence[str | os.PathLike[str]], task: Callable[[str], Any
                          "not both")
     if jobs is not None and jobs < 1:
         raise InputError(f"--jobs must be at least 1, got {jobs}")
+    if estimate is None:
+        estimate = getattr(task, "memory", task_memory)
     files = list(dict.fromkeys(os.path.abspath(p) for p in paths))
     t0 = time.perf_counter()
     with contextlib.ExitStack() as stack:
