@@ -163,6 +163,7 @@ def test_expand_paths_searches_folders_matches_globs_and_keeps_named_files(tmp_p
     (tmp_path / ".hidden").mkdir()
     (tmp_path / "out").mkdir()
     for name in ("a/one.msh", "a/deep/two.vtu", "a/notes.txt", "a/run.jsonl", ".hidden/x.msh",
+                 "a/.one.part.msh",
                  "out/renumbered.msh", "b.mtx", "c.inp"):
         (tmp_path / name).write_text("x")
     found = expand_paths([tmp_path], exclude=[tmp_path / "out"])

@@ -17,9 +17,9 @@ Why
 ---
 dask.distributed runs the same client code against a cluster on one
 machine and against one started by SSH, a batch queue or Kubernetes, and
-brings what a pool of our own would have to reinvent: a task whose worker
-dies is given to another worker, and tasks can declare resources that
-each worker holds a fixed amount of.
+brings what a pool of our own would have to reinvent: a worker's death is
+noticed and reported for each task it held, and tasks can declare
+resources that each worker holds a fixed amount of.
 
 Faults
 ------
@@ -64,6 +64,13 @@ With a results file the client reads every file once to hash it
 (SHA-256); the estimate reads the header (a text gmsh file is searched
 for its ``$Elements`` line).  Each task's result travels back as JSON-ready
 data, never as the mesh.
+
+References
+----------
+M. Rocklin, "Dask: parallel computation with blocked algorithms and task
+scheduling", Proceedings of the 14th Python in Science Conference, 2015,
+pp. 130-136 (the task scheduler; its distributed scheduler's resources and
+worker-failure rules are those of the dask.distributed documentation).
 """
 
 from __future__ import annotations
@@ -122,11 +129,12 @@ def is_input_file(path: str | os.PathLike[str]) -> bool:
 
 
 def _folder_files(folder: Path, exclude: Sequence[Path]) -> list[Path]:
-    """Readable-format files under ``folder``, sorted; hidden folders and ``exclude`` left out."""
+    """Readable-format files under ``folder``, sorted; hidden files and folders (temporary
+    outputs among them) and ``exclude`` left out."""
     out = []
     for path in sorted(folder.rglob("*")):
         rel = path.relative_to(folder).parts
-        if any(p.startswith(".") for p in rel[:-1]) or not path.is_file():
+        if any(p.startswith(".") for p in rel) or not path.is_file():
             continue
         if any(_is_under(path, e) for e in exclude):
             continue
