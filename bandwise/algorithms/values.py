@@ -54,7 +54,7 @@ from bandwise.core.model import Model, as_xyz
 
 from .checks.findings import Finding, counted
 from .inertia import InertiaError, ZeroModes, zero_modes
-from .rigid.motions import _motion_rows
+from .rigid.motions import motion_rows  # the rigid motions at a DOF, shared with the kinematics
 
 __all__ = ["RigidBodyCheck", "ValuesCheck", "check_values", "rigid_body_vectors"]
 
@@ -295,10 +295,10 @@ def rigid_body_vectors(coordinates: ArrayLike, dof_names: tuple[str, ...] | list
     centre = x.mean(axis=0) if len(x) else np.zeros(3)
     r = x - centre
     d = len(names)
-    first = _motion_rows(space, names[0], r)
+    first = motion_rows(space, names[0], r)
     out = np.zeros((len(x) * d, first.shape[1]))
     for a, name in enumerate(names):
-        out[a::d] = first if a == 0 else _motion_rows(space, name, r)
+        out[a::d] = first if a == 0 else motion_rows(space, name, r)
     norms = np.linalg.norm(out, axis=0)
     keep = norms > 0
     motion_names = {"scalar": ("constant t",), "plane": ("tx", "ty", "qz"),

@@ -23,7 +23,7 @@ from bandwise.core.dofs import DofLayout
 
 from .bodies import Bodies
 from .geometry import _Frames
-from .motions import _BIT, _motion_rows, _n_motions, _space_dofs
+from .motions import _BIT, _n_motions, _space_dofs, motion_rows
 
 #: Singular values below this fraction of the largest count as zero.
 RANK_RTOL = 1e-8
@@ -35,7 +35,7 @@ def _pair_rows(space: str, dof: str, pts: NDArray[np.float64], frames: _Frames,
                node: NDArray[np.int64], body: NDArray[np.int64]) -> NDArray[np.float64]:
     """Rows (in each body's reduced coordinates) of one DOF at (node, body) pairs."""
     r = (pts[node] - frames.centroid[body]) / frames.size[body][:, None]
-    rows = _motion_rows(space, dof, r)
+    rows = motion_rows(space, dof, r)
     if dof[0] == "r":   # coordinate q = rotation x body size (r is scaled): a rotation is q / size
         rows = rows / frames.size[body][:, None]
     return np.einsum("pm,pmk->pk", rows, frames.basis[body])

@@ -53,7 +53,7 @@ def _n_motions(space: str) -> int:
     return {"space": 6, "plane": 3, "scalar": 1}[space]
 
 
-def _motion_rows(space: str, dof: str, r: NDArray[np.float64]) -> NDArray[np.float64]:
+def motion_rows(space: str, dof: str, r: NDArray[np.float64]) -> NDArray[np.float64]:
     """Rows of the rigid motions evaluated at one DOF of points ``r`` (body frame, scaled).
 
     Coordinates: space (tx, ty, tz, qx, qy, qz), plane (tx, ty, qz), scalar (c);
