@@ -40,7 +40,7 @@ from numpy.typing import NDArray
 
 from .dofs import DofLayout
 from .graph import NodeGraph
-from .model import check_permutation, inverse_permutation
+from .model import check_permutation, order_and_positions
 
 #: Bytes of one stored matrix value (double precision).
 VALUE_BYTES = 8
@@ -113,13 +113,7 @@ def first_columns(graph: NodeGraph, perm: NDArray[np.integer] | None = None) -> 
     ndarray
         ``f[i]`` for row i of the reordered matrix; ``f[i] <= i``.
     """
-    n = graph.n
-    if perm is None:
-        perm = np.arange(n, dtype=np.int64)
-        pos = perm
-    else:
-        perm = check_permutation(perm, n)
-        pos = inverse_permutation(perm)
+    perm, pos = order_and_positions(perm, graph.n)
     f_old = _first_columns(graph.indptr, graph.indices, pos)
     return f_old[perm]
 

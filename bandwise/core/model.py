@@ -228,3 +228,16 @@ def check_permutation(perm: NDArray[np.integer], n: int) -> NDArray[np.int64]:
     if n and (p.min() < 0 or p.max() >= n or np.bincount(p, minlength=n).max() != 1):
         raise InputError("the permutation does not list every node exactly once")
     return p
+
+
+def order_and_positions(perm: NDArray[np.integer] | None,
+                        n: int) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """``perm`` checked (the identity when None) and its inverse ``pos[old] = new``.
+
+    Every kernel that walks a reordered matrix needs both; they are made here once.
+    """
+    if perm is None:
+        ident = np.arange(n, dtype=np.int64)
+        return ident, ident
+    perm = check_permutation(perm, n)
+    return perm, inverse_permutation(perm)

@@ -48,21 +48,11 @@ from numpy.typing import NDArray
 from bandwise.core.dofs import DofLayout
 from bandwise.core.graph import NodeGraph
 from bandwise.core.metrics import _dof_counts
-from bandwise.core.model import check_permutation, inverse_permutation
+from bandwise.core.model import inverse_permutation, order_and_positions
 
 __all__ = ["cholesky_nnz", "column_counts", "elimination_tree", "factor_flops"]
 
 DofSpec = int | NDArray[np.integer] | DofLayout
-
-
-def _positions(graph: NodeGraph,
-               perm: NDArray[np.integer] | None) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """``perm`` (validated, identity when None) and its inverse ``pos[old] = new``."""
-    if perm is None:
-        ident = np.arange(graph.n, dtype=np.int64)
-        return ident, ident
-    perm = check_permutation(perm, graph.n)
-    return perm, inverse_permutation(perm)
 
 
 @numba.njit(cache=True, nogil=True)
@@ -202,7 +192,7 @@ def elimination_tree(graph: NodeGraph, perm: NDArray[np.integer] | None = None) 
     >>> elimination_tree(path).tolist()
     [1, 2, 3, -1]
     """
-    perm, pos = _positions(graph, perm)
+    perm, pos = order_and_positions(perm, graph.n)
     return _etree(graph.indptr, graph.indices, perm, pos)
 
 
@@ -233,7 +223,7 @@ def column_counts(graph: NodeGraph, perm: NDArray[np.integer] | None = None) -> 
     -----
     Near O(nnz(A)) time and O(n) memory (Gilbert, Ng and Peyton 1994).
     """
-    perm, pos = _positions(graph, perm)
+    perm, pos = order_and_positions(perm, graph.n)
     return _weighted_column_counts(graph, perm, pos, np.ones(graph.n, dtype=np.int64))
 
 
@@ -244,7 +234,7 @@ def _dof_columns(graph: NodeGraph, perm: NDArray[np.integer] | None,
     Nodes without DOFs are dropped from the graph first (they are not
     unknowns, so eliminating them creates no fill).
     """
-    perm, pos = _positions(graph, perm)
+    perm, pos = order_and_positions(perm, graph.n)
     d_old = _dof_counts(graph, dofs)
     keep = d_old > 0
     if not keep.all():
