@@ -178,3 +178,17 @@ def test_effort_reaches_the_orderings_and_a_bad_one_is_refused(block, runner, cl
                                   str(tmp_path / "c.vtu")])
     assert bad.exit_code == 2 and "unknown effort 'slow'" in bad.stderr
     assert not (tmp_path / "c.vtu").exists()
+
+
+def test_the_report_draws_from_the_facets_the_checks_matched(block, tmp_path, monkeypatch):
+    from bandwise.faces.report import meshview
+
+    result = bandwise.check_file(block, supports=HELD)
+    assert result.table is not None
+
+    def not_again(model):  # the picture must not match the facets a second time
+        raise AssertionError("facet table built again for the report")
+
+    monkeypatch.setattr(meshview, "facet_table", not_again)
+    files = bandwise.write_report(result, tmp_path / "rep")
+    assert (files.folder / "mesh.png").stat().st_size > 0

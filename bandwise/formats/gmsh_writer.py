@@ -35,7 +35,7 @@ from typing import Any, BinaryIO
 
 import numpy as np
 
-from bandwise.core.model import Model
+from bandwise.core.model import Model, as_xyz
 
 from . import compat
 
@@ -254,9 +254,7 @@ def _tagged_mesh(model: Model, layout: GmshLayout, version: str) -> Any:
 def _write_entities(fh: BinaryIO, model: Model, mesh: Any, layout: GmshLayout,
                     node_entity: tuple[int, int], binary: bool) -> None:
     """The ``$Entities`` section: every entity an element block names, and the nodes' one."""
-    points = np.asarray(model.points, dtype=float)
-    if points.shape[1] == 2:
-        points = np.column_stack([points, np.zeros(len(points))])
+    points = as_xyz(np.asarray(model.points, dtype=float))
     entities: dict[tuple[int, int], dict[str, Any]] = {}
     for b, p, g in zip(mesh.cells, mesh.cell_data[GMSH_PHYSICAL], mesh.cell_data[GMSH_GEOMETRICAL]):
         key = (b.dim, int(g[0]))
@@ -305,8 +303,7 @@ def _numbers(fh: BinaryIO, values: Any, dtype: np.dtype, binary: bool, end: str 
 
 def _write_nodes(fh: BinaryIO, points: np.ndarray, entity: tuple[int, int], binary: bool) -> None:
     """The ``$Nodes`` section: one block, every node in order, tags 1..n."""
-    if points.shape[1] == 2:
-        points = np.column_stack([points, np.zeros(len(points))])
+    points = as_xyz(points)
     n = len(points)
     tags = np.arange(1, n + 1, dtype=_C_SIZE_T)
     fh.write(b"$Nodes\n")

@@ -32,7 +32,11 @@ from bandwise.algorithms.checks.verdict import Verdict, check_fail_on, decide_ve
 from bandwise.algorithms.modeshape import free_motion
 from bandwise.algorithms.orderings.compare import Comparison
 from bandwise.algorithms.supports import Support
-from bandwise.algorithms.topology import face_connected_blocks, facet_table_in_background
+from bandwise.algorithms.topology import (
+    FacetTable,
+    face_connected_blocks,
+    facet_table_in_background,
+)
 from bandwise.algorithms.values import ValuesCheck, check_values
 from bandwise.core.dofs import DofLayout, dof_layout
 from bandwise.core.equations import EquationNumbering, equation_numbering
@@ -84,6 +88,8 @@ class CheckResult:
         when asked for (``mode_shape=True``) and small enough to compute.
     kept_equations
         With orderings compared: the equations numbered in the kept order.
+    table
+        The element facets the checks matched, kept for the report's picture.
     values
         A matrix file with values: what the values say
         (:func:`bandwise.algorithms.values.check_values`).
@@ -113,6 +119,7 @@ class CheckResult:
     next_steps: tuple[NextStep, ...] = ()
     comparison_time: ComparisonTime | None = field(default=None, compare=False)
     values: ValuesCheck | None = None
+    table: FacetTable | None = field(default=None, repr=False, compare=False)
 
     def __repr__(self) -> str:
         s = self.summary
@@ -265,7 +272,7 @@ def analyse_model(model: Model, extra: DeckInputs, deck: Deck | None, file: str,
     return CheckResult(file, "mesh", summary, verdict, findings, fail_on, held, comparison,
                        motion, kept, model, graph, layout,
                        next_steps=next_steps(file, findings, held, fail_on, options),
-                       comparison_time=timing)
+                       comparison_time=timing, table=table)
 
 
 def _check_matrix(path: Path, fail_on: str, compare: str | None, objective: str,

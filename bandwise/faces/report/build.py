@@ -149,7 +149,7 @@ def visible_arrows(view: MeshView, arrows: tuple[NDArray[np.int64], NDArray[np.f
 def mesh_figure(inputs: ReportInputs) -> Figure:
     """The mesh coloured by part, the nodes of findings and free modes marked, a free motion."""
     assert inputs.model is not None
-    view = mesh_view(inputs.model, inputs.graph)
+    view = mesh_view(inputs.model, inputs.graph, table=inputs.table)
     arrows = visible_arrows(view, mode_arrows(inputs))
     found, moving = finding_marks(inputs), mode_marks(inputs)
     ax = fg.mesh_axes(view, {**found, **moving}, arrows)

@@ -68,6 +68,9 @@ class ReportInputs:
         by the same function).
     motion
         One free zero-energy motion ``(nodes, translations)`` to draw as arrows.
+    table
+        The element facets the checks matched (the picture's outer faces come
+        from it instead of a second matching).
     outputs
         Files the run wrote, as ``(what, path)``: the renumbered mesh, the maps.
     output_notes
@@ -104,6 +107,7 @@ class ReportInputs:
     next_steps: tuple[NextStep, ...] = ()
     comparison_time: ComparisonTime | None = None
     values: Any = None
+    table: Any = None
 
     @property
     def subject(self) -> str:
@@ -154,7 +158,7 @@ def report_inputs(result: CheckResult | RenumberResult) -> ReportInputs:
             motion=check.motion, outputs=tuple(outputs),
             output_notes=(*result.losses, *getattr(result, "output_notes", ())),
             next_steps=check.next_steps, comparison_time=result.comparison_time,
-            values=getattr(check, "values", None))
+            values=getattr(check, "values", None), table=check.table)
     sup = result.supports
     equations = result.kept_equations or (None if sup is None else sup.equations)
     return ReportInputs(
@@ -164,5 +168,5 @@ def report_inputs(result: CheckResult | RenumberResult) -> ReportInputs:
         modes=None if sup is None else sup.analysis, equations=equations,
         fail_on=result.fail_on, verdict=result.verdict, motion=result.motion,
         next_steps=result.next_steps, comparison_time=result.comparison_time,
-        values=getattr(result, "values", None))
+        values=getattr(result, "values", None), table=result.table)
 

@@ -20,7 +20,7 @@ from scipy.sparse.csgraph import connected_components
 from bandwise.algorithms.topology import FacetTable, coupling_cells, facet_table
 from bandwise.core.elements import CORNER_COUNT, cell_dimension
 from bandwise.core.graph import NodeGraph
-from bandwise.core.model import Model
+from bandwise.core.model import Model, as_xyz
 
 #: Azimuth and elevation (degrees) of the oblique view of 3D meshes: seen from
 #: +x, -y, +z, so that x runs to the right and z up.
@@ -171,7 +171,7 @@ def spread(m: int, keep: int) -> NDArray[np.int64]:
 
 
 def mesh_view(model: Model, graph: NodeGraph, max_facets: int = 60000,
-              max_lines: int = 40000) -> MeshView:
+              max_lines: int = 40000, table: FacetTable | None = None) -> MeshView:
     """Reduce a mesh to its drawing: outer facets, members, parts, projection.
 
     Parameters
@@ -180,19 +180,19 @@ def mesh_view(model: Model, graph: NodeGraph, max_facets: int = 60000,
         The mesh and its node graph (for the connected parts).
     max_facets, max_lines
         Most facets and members drawn; bigger meshes are subsampled.
+    table
+        The model's facet table, when the checks already matched it.
 
     Notes
     -----
     The outer faces come from one compiled facet grouping (:mod:`bandwise.algorithms.topology`).
     """
     part, n_parts = node_parts(graph)
-    points = np.asarray(model.points, dtype=np.float64)
-    if points.shape[1] == 2:
-        points = np.column_stack([points, np.zeros(len(points))])
+    points = as_xyz(np.asarray(model.points, dtype=np.float64))
     screen, names, toward = projection(points)
     xy = points @ screen
     cells2d, lines = surface_cells(model)
-    outer = outer_faces(model)
+    outer = outer_faces(model, table)
     if toward is not None and len(outer):
         outer = outer[_facing(points, outer, toward)]    # the back of a solid is hidden
     facets = np.concatenate([outer, cells2d])
