@@ -102,6 +102,21 @@ def test_no_held_dofs_equals_plain_metrics() -> None:
     assert numbering.n_fixed == 0
 
 
+def test_whole_figures_are_reused_only_when_nothing_is_held() -> None:
+    """With no DOF held the reduced system is the whole one; with one held it is measured."""
+    model = hex_grid(3, 3, 2)
+    layout = dof_layout(model)
+    graph = node_graph(model)
+    perm = np.random.default_rng(4).permutation(model.n_nodes)
+    whole = metrics(graph, perm, layout)
+    free = equation_numbering(layout, None, perm, graph, whole=whole)
+    assert free.reduced is whole
+    held = apply_supports(model, layout, [parse_support("plane x=0:fixed")])
+    supported = equation_numbering(layout, held.fixed, perm, graph, whole=whole)
+    assert supported.reduced == equation_numbering(layout, held.fixed, perm, graph).reduced
+    assert supported.reduced.n_rows < whole.n_rows
+
+
 def test_bad_input_is_an_input_error() -> None:
     model = quad_grid(2, 2)
     layout = dof_layout(model)

@@ -161,19 +161,27 @@ def test_cells_a_format_cannot_hold_are_refused(tmp_path):
     assert list(tmp_path.iterdir()) == []
 
 
-def test_a_file_that_reads_back_differently_is_not_written(tmp_path, monkeypatch):
-    """A writer that puts the nodes in another order: caught by the read-back, nothing renamed."""
+@pytest.mark.parametrize("name", ["plate.vtk", "plate.vtu"])
+def test_a_file_that_reads_back_differently_is_not_written(tmp_path, monkeypatch, name):
+    """A writer (meshio's or bandwise's VTU writer) that puts the nodes in another order:
+    caught by the read-back, nothing renamed."""
     import bandwise.formats.meshio_io as adapter
+    from bandwise.formats import vtu_writer
 
-    real = adapter.write_mesh
+    real, own = adapter.write_mesh, vtu_writer.write_vtu
 
     def shuffled(path, mesh, name, options):
         mesh.points = mesh.points[::-1].copy()
         real(path, mesh, name, options)
 
+    def own_shuffled(path, mesh, compression):
+        mesh.points = mesh.points[::-1].copy()
+        own(path, mesh, compression)
+
     monkeypatch.setattr(adapter, "write_mesh", shuffled)
-    out = tmp_path / "plate.vtu"
-    with pytest.raises(MeshWriteError, match="not written: read back, the VTK XML .* nodes at "
+    monkeypatch.setattr(vtu_writer, "write_vtu", own_shuffled)
+    out = tmp_path / name
+    with pytest.raises(MeshWriteError, match="not written: read back, the .* nodes at "
                                              "other places"):
         write_model(tet_grid(3, 3, 3), out)
     assert list(tmp_path.iterdir()) == []

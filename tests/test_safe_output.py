@@ -45,6 +45,8 @@ ALLOWED = {
 #: Writers handed a file in the output's temporary folder by ``mesh_io.write_model``.
 ALLOWED.update({("formats/gmsh_writer.py", f): "writes the temporary file write_model gives it"
                 for f in ("_numbers", "_write_nodes", "write_data", "write_gmsh")})
+ALLOWED.update({("formats/vtu_writer.py", f): "writes the temporary file write_model gives it"
+                for f in ("write_vtu", "_write_array")})
 
 
 def _in_atomic_folder(func: ast.AST) -> bool:
@@ -126,15 +128,24 @@ def test_failed_write_keeps_the_old_output(writer, failure, tmp_path, monkeypatc
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out.txt" if writer != "mesh" else "out.vtu"]
 
 
-def test_format_writer_failing_half_way_leaves_nothing(tmp_path, monkeypatch):
+@pytest.mark.parametrize("name", ["plate.vtk", "plate.vtu"])
+def test_format_writer_failing_half_way_leaves_nothing(tmp_path, monkeypatch, name):
+    """meshio's writer (legacy VTK) or bandwise's own (VTU) failing after writing a part."""
     import meshio
+
+    from bandwise.formats import vtu_writer
 
     def half_written(path, mesh, file_format=None, **kw):
         Path(path).write_text("<VTKFile half")
         raise ValueError("writer gave up")
 
+    def half_array(f, *args):
+        f.write(b"<DataArray half")
+        raise ValueError("writer gave up")
+
     monkeypatch.setattr(meshio, "write", half_written)
-    target = tmp_path / "plate.vtu"
+    monkeypatch.setattr(vtu_writer, "_write_array", half_array)
+    target = tmp_path / name
     with pytest.raises(MeshWriteError, match="writer gave up"):
         write_model(quad_grid(3, 3), target)
     assert list(tmp_path.iterdir()) == []

@@ -105,7 +105,8 @@ def _dof_table(layout: DofLayout, fixed: NDArray[np.int64], perm: NDArray[np.int
 
 def equation_numbering(layout: DofLayout, fixed: NDArray[np.integer] | None,
                        perm: NDArray[np.integer] | None = None,
-                       graph: NodeGraph | None = None) -> EquationNumbering:
+                       graph: NodeGraph | None = None, *,
+                       whole: Metrics | None = None) -> EquationNumbering:
     """Number the free DOFs node after node in the new order; set held DOFs aside.
 
     Parameters
@@ -119,6 +120,11 @@ def equation_numbering(layout: DofLayout, fixed: NDArray[np.integer] | None,
     graph
         The node graph (old numbering); with it, the reduced system's
         bandwidth, profile, wavefront and storage are measured.
+    whole
+        The DOF-level figures of the whole system in the order ``perm``
+        (``metrics(graph, perm, layout)``), when the caller has them: with no
+        DOF held the reduced system is the whole one, and they are taken as
+        they are instead of being measured again.
 
     Returns
     -------
@@ -146,7 +152,12 @@ def equation_numbering(layout: DofLayout, fixed: NDArray[np.integer] | None,
         raise InputError("held DOFs need named DOFs per node")
     pos, dof, held = _dof_table(layout, fixed, perm)
     equation = np.where(held, -1, np.cumsum(~held) - 1).astype(np.int64)
-    reduced = None if graph is None else reduced_metrics(graph, layout, fixed, perm)
+    if graph is None:
+        reduced = None
+    elif whole is not None and not held.any():
+        reduced = whole
+    else:
+        reduced = reduced_metrics(graph, layout, fixed, perm)
     return EquationNumbering(perm, perm[pos], dof, equation, reduced, layout.unnamed is None)
 
 

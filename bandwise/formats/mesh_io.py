@@ -255,6 +255,8 @@ def _write_file(model: Model, part: Path, fmt: Format, kind: FileKind) -> Model:
             elif fmt.name == "flac3d":
                 options = {"binary": binary}
             mesh = meshio_io.to_meshio(prepared, fmt.name)
+            if fmt.name == "vtu" and binary and _wrote_own_vtu(part, mesh, kind.compression):
+                return model
             meshio_io.write_mesh(part, mesh, name, options)
             if fmt.name == "xdmf":
                 _own_companion(part)
@@ -263,9 +265,21 @@ def _write_file(model: Model, part: Path, fmt: Format, kind: FileKind) -> Model:
     except Exception as exc:  # noqa: BLE001  writers raise any type
         from .meshio_io import failure_text
 
-        raise MeshWriteError(f"{part.name}: cannot write as {fmt.name}: meshio's writer failed "
+        raise MeshWriteError(f"{part.name}: cannot write as {fmt.name}: the writer failed "
                              f"on this mesh: {failure_text(exc, reading=False)}") from None
     return model
+
+
+def _wrote_own_vtu(part: Path, mesh: Any, compression: str | None) -> bool:
+    """Write a binary VTU file with bandwise's threaded writer; False: meshio's must do it."""
+    from .vtu import NotHandled
+    from .vtu_writer import write_vtu
+
+    try:
+        write_vtu(part, mesh, compression)
+    except NotHandled:
+        return False
+    return True
 
 
 _H5_NAME = re.compile(r"([^\s\"<>:/\\]+\.h5):")

@@ -34,7 +34,7 @@ import numpy as np
 from bandwise.core.model import CellBlock, Model
 
 #: VTK XML scalar type names and their numpy types (VTK File Formats, DataArray ``type``).
-_TYPES = {
+VTK_TYPES = {
     "Float32": np.float32, "Float64": np.float64,
     "Int8": np.int8, "Int16": np.int16, "Int32": np.int32, "Int64": np.int64,
     "UInt8": np.uint8, "UInt16": np.uint16, "UInt32": np.uint32, "UInt64": np.uint64,
@@ -48,7 +48,7 @@ _MAX_INFLATE = 1032
 
 
 class NotHandled(Exception):
-    """The fast path does not read this file; read it with meshio."""
+    """The fast path does not handle this file or mesh; meshio reads or writes it instead."""
 
 
 def _attrs(raw: bytes) -> dict[str, str]:
@@ -64,7 +64,7 @@ class _Reader:
         header = root.get("header_type", "UInt32")
         if header not in ("UInt32", "UInt64"):
             raise NotHandled("header type")
-        self.htype = np.dtype(_TYPES[header])
+        self.htype = np.dtype(VTK_TYPES[header])
         compressor = root.get("compressor")
         if compressor not in (None, "vtkZLibDataCompressor"):
             raise NotHandled("compressor")
@@ -96,7 +96,7 @@ class _Reader:
         if attrs.get("format", "ascii") != "binary":
             raise NotHandled("not inline binary data")
         try:
-            dtype = np.dtype(_TYPES[attrs["type"]])
+            dtype = np.dtype(VTK_TYPES[attrs["type"]])
         except KeyError:
             raise NotHandled("data type") from None
         start, end = self._chars(start, end)

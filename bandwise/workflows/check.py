@@ -264,7 +264,8 @@ def analyse_model(model: Model, extra: DeckInputs, deck: Deck | None, file: str,
     if compare is not None and compare != "none":
         comparison, timing = timed_comparison(graph, compare, objective, layout,
                                               progress=progress)
-        kept = equation_numbering(layout, held.supports.fixed, comparison.best.perm, graph)
+        kept = equation_numbering(layout, held.supports.fixed, comparison.best.perm, graph,
+                                  whole=comparison.best.dofs)
     motion = None
     if mode_shape and held.given and held.free_modes:
         with step(progress, "drawing a free motion"):

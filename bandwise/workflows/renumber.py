@@ -330,7 +330,7 @@ def _renumber_mesh(source: Path, out: Path, node_map: Path, methods: str, object
     file_supports = None if deck is None else deck_support_set(deck, layout)
     with step(progress, "numbering equations"):
         equations = renumbered_equations(model, layout, graph, supports, perm, dof_map,
-                                         file_supports)
+                                         file_supports, whole=(comp.original.dofs, comp.best.dofs))
     check = None
     if analyse:  # what a report of the job shows: checks and modes on the same mesh
         extra = (deck_inputs(model, deck, layout) if deck is not None

@@ -28,6 +28,7 @@ from bandwise.algorithms.supports import (
 from bandwise.core.dofs import DofLayout
 from bandwise.core.equations import EquationNumbering, equation_numbering
 from bandwise.core.graph import NodeGraph
+from bandwise.core.metrics import Metrics
 from bandwise.core.model import Model, inverse_permutation
 from bandwise.core.progress import Progress, step
 from bandwise.formats.node_map import write_dof_map
@@ -168,16 +169,20 @@ class RenumberedEquations:
 def renumbered_equations(model: Model, layout: DofLayout, graph: NodeGraph,
                          supports: Sequence[Support], perm: NDArray[np.integer],
                          dof_map: str | Path | None = None,
-                         file_supports: SupportSet | None = None) -> RenumberedEquations:
+                         file_supports: SupportSet | None = None,
+                         whole: tuple[Metrics, Metrics] | None = None) -> RenumberedEquations:
     """Number the equations before and after ``perm``; write the DOF map of the new numbering.
 
     ``file_supports`` (a solver deck's boundary cards) add to ``supports``.
-    In the map, nodes are labelled by their 1-based position in the
-    renumbered mesh.
+    ``whole``: the DOF-level figures of the whole system before and after,
+    when already measured (a comparison's original and chosen rows), reused
+    when no DOF is held.  In the map, nodes are labelled by their 1-based
+    position in the renumbered mesh.
     """
     held = apply_supports(model, layout, list(supports)).combined(file_supports)
-    before = equation_numbering(layout, held.fixed, None, graph)
-    after = equation_numbering(layout, held.fixed, perm, graph)
+    before_whole, after_whole = (None, None) if whole is None else whole
+    before = equation_numbering(layout, held.fixed, None, graph, whole=before_whole)
+    after = equation_numbering(layout, held.fixed, perm, graph, whole=after_whole)
     if dof_map is not None:
         write_dof_map(dof_map, after, inverse_permutation(perm) + 1, "node")
     return RenumberedEquations(before, after, held)
