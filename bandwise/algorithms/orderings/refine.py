@@ -92,20 +92,17 @@ class Refinement:
 
 
 @numba.njit(cache=True, nogil=True)
-def _first(indptr, indices, pos, v):  # pragma: no cover - compiled
-    """Position of the first node of row ``v`` (the row's envelope start)."""
-    f = pos[v]
-    for t in range(indptr[v], indptr[v + 1]):
-        f = min(f, pos[indices[t]])
-    return f
-
-
-@numba.njit(cache=True, nogil=True)
 def _swap(indptr, indices, order, pos, first, mark, stamp, p):  # pragma: no cover
     """Exchange the nodes at positions ``p`` and ``p + 1``; return the change of profile.
 
-    Only the rows of the two nodes and of their neighbours change: their
-    envelope starts are recomputed (``mark`` holds ``stamp`` for rows done).
+    With ``a`` at ``p`` and ``b`` at ``p + 1``, only two kinds of rows
+    change their envelope start (``first``, the least position in the
+    row's closed neighbourhood): a row of ``a``'s closed neighbourhood that
+    started at ``p`` now starts at ``p + 1``, unless ``b`` is in it too (then
+    at ``p``); a row of ``b``'s closed neighbourhood that started at
+    ``p + 1`` now starts at ``p``.  So the cost is O(deg a + deg b), no row
+    is rescanned (``mark`` holds ``stamp`` for the closed neighbourhood of
+    ``b``).  The row indices of ``a`` and ``b`` change by +1 and -1.
     """
     a = order[p]
     b = order[p + 1]
@@ -113,16 +110,20 @@ def _swap(indptr, indices, order, pos, first, mark, stamp, p):  # pragma: no cov
     order[p + 1] = a
     pos[a] = p + 1
     pos[b] = p
-    delta = 1 - 1                                    # a moves down one, b up one
-    for v in (a, b):
-        for t in range(indptr[v] - 1, indptr[v + 1]):
-            w = v if t < indptr[v] else indices[t]
-            if mark[w] == stamp:
-                continue
-            mark[w] = stamp
-            f = _first(indptr, indices, pos, w)
-            delta -= f - first[w]
-            first[w] = f
+    mark[b] = stamp
+    for t in range(indptr[b], indptr[b + 1]):
+        mark[indices[t]] = stamp
+    delta = 0
+    for t in range(indptr[a] - 1, indptr[a + 1]):
+        w = a if t < indptr[a] else indices[t]
+        if first[w] == p and mark[w] != stamp:
+            first[w] = p + 1
+            delta -= 1
+    for t in range(indptr[b] - 1, indptr[b + 1]):
+        w = b if t < indptr[b] else indices[t]
+        if first[w] == p + 1:
+            first[w] = p
+            delta += 1
     return delta
 
 
