@@ -491,7 +491,11 @@ def _refines(n: int, effort: str) -> bool:
 def _refined_row(graph: NodeGraph, best: OrderingResult, rows: list[OrderingResult],
                  dofs: int | DofLayout, fill: Callable[..., int] | None,
                  effort: str) -> tuple[OrderingResult | None, str]:
-    """The refinement of ``best`` as a candidate, and why it was cut short ('' if not)."""
+    """The refinement of ``best`` as a candidate, and why it was cut short ('' if not).
+
+    The other rows, least profile first, go along as runners-up (with more
+    effort they are refined too: :data:`bandwise.algorithms.orderings.refine.STARTS`).
+    """
     from .refine import refined
 
     if best.perm is None:
@@ -502,8 +506,12 @@ def _refined_row(graph: NodeGraph, best: OrderingResult, rows: list[OrderingResu
         limit = max(2.0, (4.0 if effort == "thorough" else 1.0) * spent)
     result: list[Any] = []
 
+    others = [r.perm for r in sorted((r for r in rows if r.ok and r.method != best.method
+                                      and r.perm is not None and r.dofs is not None),
+                                     key=lambda r: (r.dofs.profile, r.method))]
+
     def order() -> NDArray[np.int64]:
-        result.append(refined(graph, best.perm, effort, seconds=limit))
+        result.append(refined(graph, best.perm, effort, seconds=limit, others=others))
         return result[0].perm
 
     row = _candidate(graph, REFINED, order, dofs, fill)
