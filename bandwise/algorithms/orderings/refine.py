@@ -68,18 +68,18 @@ EFFORTS: dict[str, tuple[tuple[tuple[float, float], ...], int]] = {
     "thorough": (((1.0, 1.0), (1.0, 2.0), (2.0, 1.0), (1.0, 4.0), (1.0, 8.0), (4.0, 1.0),
                   (1.0, 16.0), (8.0, 1.0), (1.0, 32.0), (2.0, 3.0)), 4),
 }
-#: Passes of node moves (local exchange) after the Sloan rounds, per effort, and how
-#: far (positions) a node may move in one try.
-MOVE_PASSES = {"fast": 0, "balanced": 2, "thorough": 8}
+#: Passes of node moves (local exchange) after the Sloan rounds, and how far (positions)
+#: a node may move in one try, per effort; the reach when none is given.
+MOVES = {"fast": (1, 8), "balanced": (4, 48), "thorough": (8, 48)}
 MOVE_REACH = 48
 #: How many orderings (the best and the runners-up, by profile) are refined, per effort.
-STARTS = {"fast": 1, "balanced": 3, "thorough": 3}
+STARTS = {"fast": 2, "balanced": 3, "thorough": 3}
 #: Annealing steps per node after the moves, per effort (0: none), and the most steps
 #: on one graph; how far one step may move a node; the temperatures at the start and
 #: the end, in units of the mean degree (a profile change is a count of envelope starts
 #: that moved, each move shifting about a degree's worth of them).
-ANNEAL_STEPS = {"fast": 0, "balanced": 300, "thorough": 1000}
-ANNEAL_MAX_STEPS = 4_000_000
+ANNEAL_STEPS = {"fast": 0, "balanced": 500, "thorough": 1000}
+ANNEAL_MAX_STEPS = 3_000_000
 ANNEAL_REACH = 8
 ANNEAL_TEMPERATURES = (0.6, 0.02)
 
@@ -418,7 +418,7 @@ def refined(graph: NodeGraph, perm: NDArray[np.integer], effort: str = "balanced
         The ordering to refine (``perm[new] = old``), in practice the best one.
     effort
         A key of :data:`EFFORTS`: the weight pairs and rounds, and of
-        :data:`STARTS`, :data:`MOVE_PASSES` and :data:`ANNEAL_STEPS`.
+        :data:`STARTS`, :data:`MOVES` and :data:`ANNEAL_STEPS`.
     seconds
         Stop starting new work after this long (None: no limit).
     others
@@ -472,13 +472,14 @@ def refined(graph: NodeGraph, perm: NDArray[np.integer], effort: str = "balanced
         if prof < best_prof:
             best, best_prof = candidate, prof
 
-    if MOVE_PASSES[effort] and stopped != "time":
-        keep(local_exchange(graph, best, MOVE_PASSES[effort], seconds=left()))
+    passes, reach = MOVES[effort]
+    if passes and stopped != "time":
+        keep(local_exchange(graph, best, passes, reach, seconds=left()))
         steps = min(ANNEAL_STEPS[effort] * graph.n, ANNEAL_MAX_STEPS)
         if steps and not out_of_time():
             keep(annealed(graph, best, steps, seconds=left()))
             if not out_of_time():
-                keep(local_exchange(graph, best, MOVE_PASSES[effort], seconds=left()))
+                keep(local_exchange(graph, best, passes, reach, seconds=left()))
         if out_of_time():
             stopped = "time"
     return Refinement(best, before, best_prof, trials, time.perf_counter() - t0, stopped)
