@@ -417,11 +417,13 @@ def compare_orderings(graph: NodeGraph, methods: str | Sequence[str] = "auto",
         ``"fast"``, ``"balanced"`` or ``"thorough"`` (:data:`EFFORTS`): how
         much time to spend beyond the orderings themselves.  With ``auto``
         and the profile, the best numbering is refined (:mod:`bandwise.algorithms.orderings.refine`:
-        Sloan steered by it under several weights, then node moves) into a
+        Sloan steered by it and by the runners-up under several weights,
+        then node moves and, from ``balanced`` on, annealing of them) into a
         candidate named ``refined``: with ``fast`` on graphs up to
         :data:`REFINE_FAST_MAX_NODES` nodes, with ``balanced`` on any graph
-        within a time limit of about the orderings' own time, with
-        ``thorough`` longer and after every ordering was tried.
+        (over :data:`REFINE_FAST_MAX_NODES` nodes within a time limit of
+        about the orderings' own time), with ``thorough`` longer and after
+        every ordering was tried.
 
     Returns
     -------
