@@ -20,6 +20,14 @@ of those moves (:func:`annealed`, after Lewis 1994), and moved again.  The
 result is never worse than the ordering given: it is returned unchanged
 when nothing beats it.
 
+Settings chosen by measurement on the 77 open test matrices (geometric
+mean of the profile over networkx's RCM profile, ``thorough`` weights and
+rounds): Sloan rounds from the best ordering alone 0.646, from the best
+two 0.640, three 0.638, five 0.636; a grid of 24 weight pairs and six
+rounds instead gained nothing (0.647); after the rounds from three starts,
+eight passes of moves 0.626, then 1,000 annealing steps per node (reach 8,
+temperatures 0.6 to 0.02 of the mean degree) and moves again 0.614.
+
 The key of the node at position ``p`` of its part (``k`` nodes, largest
 degree ``D``) is ``(k - 1 - p) / max(1, floor(k / D))``, the normalisation of
 :func:`bandwise.algorithms.orderings.spectral_sloan.spectral_key`, so the
