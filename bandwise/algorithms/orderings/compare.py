@@ -417,11 +417,13 @@ def compare_orderings(graph: NodeGraph, methods: str | Sequence[str] = "auto",
         ``"fast"``, ``"balanced"`` or ``"thorough"`` (:data:`EFFORTS`): how
         much time to spend beyond the orderings themselves.  With ``auto``
         and the profile, the best numbering is refined (:mod:`bandwise.algorithms.orderings.refine`:
-        Sloan steered by it under several weights, then node moves) into a
+        Sloan steered by it and by the runners-up under several weights,
+        then node moves and, from ``balanced`` on, annealing of them) into a
         candidate named ``refined``: with ``fast`` on graphs up to
         :data:`REFINE_FAST_MAX_NODES` nodes, with ``balanced`` on any graph
-        within a time limit of about the orderings' own time, with
-        ``thorough`` longer and after every ordering was tried.
+        (over :data:`REFINE_FAST_MAX_NODES` nodes within a time limit of
+        about the orderings' own time), with ``thorough`` longer and after
+        every ordering was tried.
 
     Returns
     -------
@@ -491,7 +493,11 @@ def _refines(n: int, effort: str) -> bool:
 def _refined_row(graph: NodeGraph, best: OrderingResult, rows: list[OrderingResult],
                  dofs: int | DofLayout, fill: Callable[..., int] | None,
                  effort: str) -> tuple[OrderingResult | None, str]:
-    """The refinement of ``best`` as a candidate, and why it was cut short ('' if not)."""
+    """The refinement of ``best`` as a candidate, and why it was cut short ('' if not).
+
+    The other rows, least profile first, go along as runners-up (with more
+    effort they are refined too: :data:`bandwise.algorithms.orderings.refine.STARTS`).
+    """
     from .refine import refined
 
     if best.perm is None:
@@ -502,8 +508,12 @@ def _refined_row(graph: NodeGraph, best: OrderingResult, rows: list[OrderingResu
         limit = max(2.0, (4.0 if effort == "thorough" else 1.0) * spent)
     result: list[Any] = []
 
+    others = [r.perm for r in sorted((r for r in rows if r.ok and r.method != best.method
+                                      and r.perm is not None and r.dofs is not None),
+                                     key=lambda r: (r.dofs.profile, r.method))]
+
     def order() -> NDArray[np.int64]:
-        result.append(refined(graph, best.perm, effort, seconds=limit))
+        result.append(refined(graph, best.perm, effort, seconds=limit, others=others))
         return result[0].perm
 
     row = _candidate(graph, REFINED, order, dofs, fill)

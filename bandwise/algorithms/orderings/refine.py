@@ -12,9 +12,21 @@ node's position in it as the global key of Sloan's priority, runs Sloan with
 a list of weight pairs, in both directions (from either end of the order),
 and keeps the numbering of least profile; with more rounds, the winner
 becomes the key of the next round (as in the iterated refinement of Hu and
-Scott 2001, here without the multilevel hierarchy).  The result is never
-worse than the ordering given: it is returned unchanged when nothing beats
-it.
+Scott 2001, here without the multilevel hierarchy).  With more effort the
+runner-up orderings are refined the same way (a worse start often refines
+to a better numbering), the winner is polished by single-node moves
+(:func:`local_exchange`, after Hager 2002) and then by simulated annealing
+of those moves (:func:`annealed`, after Lewis 1994), and moved again.  The
+result is never worse than the ordering given: it is returned unchanged
+when nothing beats it.
+
+Settings chosen by measurement on the 77 open test matrices (geometric
+mean of the profile over networkx's RCM profile, ``thorough`` weights and
+rounds): Sloan rounds from the best ordering alone 0.646, from the best
+two 0.640, three 0.638, five 0.636; a grid of 24 weight pairs and six
+rounds instead gained nothing (0.647); after the rounds from three starts,
+eight passes of moves 0.626, then 1,000 annealing steps per node (reach 8,
+temperatures 0.6 to 0.02 of the mean degree) and moves again 0.614.
 
 The key of the node at position ``p`` of its part (``k`` nodes, largest
 degree ``D``) is ``(k - 1 - p) / max(1, floor(k / D))``, the normalisation of
@@ -31,11 +43,17 @@ Y. F. Hu and J. A. Scott, "A multilevel algorithm for wavefront reduction",
 SIAM J. Sci. Comput. 23 (2001) 1352-1375.
 S. W. Sloan, "An algorithm for profile and wavefront reduction of sparse
 matrices", Int. J. Numer. Meth. Eng. 23 (1986) 239-251.
+W. W. Hager, "Minimizing the profile of a symmetric matrix", SIAM J. Sci.
+Comput. 23 (2002) 1799-1816.
+R. R. Lewis, "Simulated annealing for profile and fill reduction of sparse
+matrices", Int. J. Numer. Meth. Eng. 37 (1994) 905-925 (volume and pages
+from memory).
 """
 
 from __future__ import annotations
 
 import time
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numba
@@ -49,7 +67,7 @@ from bandwise.core.model import check_permutation
 from ._parts import _indices32
 from .sloan import sloan
 
-__all__ = ["EFFORTS", "Refinement", "position_key", "refined"]
+__all__ = ["EFFORTS", "Refinement", "annealed", "local_exchange", "position_key", "refined"]
 
 #: Weight pairs (W1, W2) tried per effort, and the rounds of refinement.
 EFFORTS: dict[str, tuple[tuple[tuple[float, float], ...], int]] = {
@@ -58,10 +76,20 @@ EFFORTS: dict[str, tuple[tuple[tuple[float, float], ...], int]] = {
     "thorough": (((1.0, 1.0), (1.0, 2.0), (2.0, 1.0), (1.0, 4.0), (1.0, 8.0), (4.0, 1.0),
                   (1.0, 16.0), (8.0, 1.0), (1.0, 32.0), (2.0, 3.0)), 4),
 }
-#: Passes of node moves (local exchange) after the Sloan rounds, per effort, and how
-#: far (positions) a node may move in one try.
-MOVE_PASSES = {"fast": 0, "balanced": 2, "thorough": 8}
+#: Passes of node moves (local exchange) after the Sloan rounds, and how far (positions)
+#: a node may move in one try, per effort; the reach when none is given.
+MOVES = {"fast": (1, 8), "balanced": (4, 48), "thorough": (8, 48)}
 MOVE_REACH = 48
+#: How many orderings (the best and the runners-up, by profile) are refined, per effort.
+STARTS = {"fast": 2, "balanced": 3, "thorough": 3}
+#: Annealing steps per node after the moves, per effort (0: none), and the most steps
+#: on one graph; how far one step may move a node; the temperatures at the start and
+#: the end, in units of the mean degree (a profile change is a count of envelope starts
+#: that moved, each move shifting about a degree's worth of them).
+ANNEAL_STEPS = {"fast": 0, "balanced": 500, "thorough": 1000}
+ANNEAL_MAX_STEPS = 3_000_000
+ANNEAL_REACH = 8
+ANNEAL_TEMPERATURES = (0.6, 0.02)
 
 
 @dataclass(frozen=True)
@@ -92,20 +120,17 @@ class Refinement:
 
 
 @numba.njit(cache=True, nogil=True)
-def _first(indptr, indices, pos, v):  # pragma: no cover - compiled
-    """Position of the first node of row ``v`` (the row's envelope start)."""
-    f = pos[v]
-    for t in range(indptr[v], indptr[v + 1]):
-        f = min(f, pos[indices[t]])
-    return f
-
-
-@numba.njit(cache=True, nogil=True)
 def _swap(indptr, indices, order, pos, first, mark, stamp, p):  # pragma: no cover
     """Exchange the nodes at positions ``p`` and ``p + 1``; return the change of profile.
 
-    Only the rows of the two nodes and of their neighbours change: their
-    envelope starts are recomputed (``mark`` holds ``stamp`` for rows done).
+    With ``a`` at ``p`` and ``b`` at ``p + 1``, only two kinds of rows
+    change their envelope start (``first``, the least position in the
+    row's closed neighbourhood): a row of ``a``'s closed neighbourhood that
+    started at ``p`` now starts at ``p + 1``, unless ``b`` is in it too (then
+    at ``p``); a row of ``b``'s closed neighbourhood that started at
+    ``p + 1`` now starts at ``p``.  So the cost is O(deg a + deg b), no row
+    is rescanned (``mark`` holds ``stamp`` for the closed neighbourhood of
+    ``b``).  The row indices of ``a`` and ``b`` change by +1 and -1.
     """
     a = order[p]
     b = order[p + 1]
@@ -113,16 +138,20 @@ def _swap(indptr, indices, order, pos, first, mark, stamp, p):  # pragma: no cov
     order[p + 1] = a
     pos[a] = p + 1
     pos[b] = p
-    delta = 1 - 1                                    # a moves down one, b up one
-    for v in (a, b):
-        for t in range(indptr[v] - 1, indptr[v + 1]):
-            w = v if t < indptr[v] else indices[t]
-            if mark[w] == stamp:
-                continue
-            mark[w] = stamp
-            f = _first(indptr, indices, pos, w)
-            delta -= f - first[w]
-            first[w] = f
+    mark[b] = stamp
+    for t in range(indptr[b], indptr[b + 1]):
+        mark[indices[t]] = stamp
+    delta = 0
+    for t in range(indptr[a] - 1, indptr[a + 1]):
+        w = a if t < indptr[a] else indices[t]
+        if first[w] == p and mark[w] != stamp:
+            first[w] = p + 1
+            delta -= 1
+    for t in range(indptr[b] - 1, indptr[b + 1]):
+        w = b if t < indptr[b] else indices[t]
+        if first[w] == p + 1:
+            first[w] = p
+            delta += 1
     return delta
 
 
@@ -175,6 +204,19 @@ def _move_pass(indptr, indices, order, pos, first, mark, stamp, reach,
     return gain, stamp
 
 
+def _move_state(graph: NodeGraph, order: NDArray[np.int64]) -> tuple:
+    """Arrays the move kernels work on: CSR, positions, envelope starts, marks, part labels."""
+    n = graph.n
+    indptr = np.ascontiguousarray(graph.indptr, dtype=np.int64)
+    indices = _indices32(graph)
+    pos = np.empty(n, dtype=np.int64)
+    pos[order] = np.arange(n)
+    first = _first_columns(indptr, indices, pos)
+    mark = np.zeros(n, dtype=np.int64)
+    label = component_labels(graph)[1]
+    return indptr, indices, pos, first, mark, label
+
+
 def local_exchange(graph: NodeGraph, perm: NDArray[np.integer], passes: int,
                    reach: int = MOVE_REACH, seconds: float | None = None) -> NDArray[np.int64]:
     """Node moves that lower the profile, in the manner of Hager's exchanges.
@@ -191,16 +233,9 @@ def local_exchange(graph: NodeGraph, perm: NDArray[np.integer], passes: int,
     Sci. Comput. 23 (2002) 1799-1816.
     """
     order = check_permutation(perm, graph.n).copy()
-    n = graph.n
-    if n < 3 or passes <= 0:
+    if graph.n < 3 or passes <= 0:
         return order
-    indptr = np.ascontiguousarray(graph.indptr, dtype=np.int64)
-    indices = _indices32(graph)
-    pos = np.empty(n, dtype=np.int64)
-    pos[order] = np.arange(n)
-    first = _first_columns(indptr, indices, pos)
-    mark = np.zeros(n, dtype=np.int64)
-    label = component_labels(graph)[1]
+    indptr, indices, pos, first, mark, label = _move_state(graph, order)
     stamp = 0
     t0 = time.perf_counter()
     for _ in range(passes):
@@ -208,6 +243,121 @@ def local_exchange(graph: NodeGraph, perm: NDArray[np.integer], passes: int,
         if gain <= 0 or (seconds is not None and time.perf_counter() - t0 > seconds):
             break
     return order
+
+
+@numba.njit(cache=True, nogil=True)
+def _anneal(indptr, indices, order, pos, first, mark, stamp, label, reach, done, steps,
+            total_steps, t_start, t_end, current, best, best_order):  # pragma: no cover
+    """Steps ``done .. done + steps - 1`` of the annealing; returns ``(current, best, stamp)``.
+
+    ``current`` and ``best`` are profiles relative to the start; the order
+    of profile ``best`` is copied into ``best_order`` whenever it improves.
+    """
+    n = order.size
+    log_start = np.log(t_start)
+    log_end = np.log(t_end)
+    for s in range(done, done + steps):
+        temperature = np.exp(log_start + (log_end - log_start) * s / total_steps)
+        v = np.random.randint(n)
+        p = pos[v]
+        d = np.random.randint(1, reach + 1)
+        change = 0
+        q = p
+        if np.random.random() < 0.5:
+            while q < n - 1 and q - p < d and label[order[q + 1]] == label[v]:
+                stamp += 1
+                change += _swap(indptr, indices, order, pos, first, mark, stamp, q)
+                q += 1
+        else:
+            while q > 0 and p - q < d and label[order[q - 1]] == label[v]:
+                stamp += 1
+                change += _swap(indptr, indices, order, pos, first, mark, stamp, q - 1)
+                q -= 1
+        if change <= 0 or np.random.random() < np.exp(-change / temperature):
+            current += change
+            if current < best:
+                best = current
+                best_order[:] = order
+        else:                                        # rejected: carry the node back
+            while q > p:
+                stamp += 1
+                _swap(indptr, indices, order, pos, first, mark, stamp, q - 1)
+                q -= 1
+            while q < p:
+                stamp += 1
+                _swap(indptr, indices, order, pos, first, mark, stamp, q)
+                q += 1
+    return current, best, stamp
+
+
+@numba.njit(cache=True, nogil=True)
+def _seed(seed):  # pragma: no cover - compiled
+    """Seed the compiled code's own random generator (separate from numpy's)."""
+    np.random.seed(seed)
+
+
+def annealed(graph: NodeGraph, perm: NDArray[np.integer], steps: int,
+             reach: int = ANNEAL_REACH,
+             temperatures: tuple[float, float] = ANNEAL_TEMPERATURES,
+             seed: int = 0, seconds: float | None = None) -> NDArray[np.int64]:
+    """Simulated annealing of single-node moves for a smaller profile.
+
+    Lewis (1994) showed that annealing started from a conventional
+    ordering lowers the profile of the Harwell-Boeing matrices well below
+    what the constructive orderings reach (to about 0.8 of theirs, at a much
+    higher cost).  Here a step takes a node at random and carries it a
+    random distance of 1 to ``reach`` positions, up or down, inside its part
+    (so parts stay contiguous); a move that raises the profile by ``c`` is
+    kept with probability ``exp(-c / T)``, ``T`` falling geometrically from
+    ``temperatures[0]`` to ``temperatures[1]`` times the mean degree over
+    the steps.  Each move is scored by the adjacent exchanges of
+    :func:`local_exchange` (O(degree) each).  The least profile met is
+    returned, so the result is never worse than ``perm``; the same seed gives
+    the same result.
+
+    Parameters
+    ----------
+    graph
+        The node graph.
+    perm
+        Starting ordering (``perm[new] = old``).
+    steps
+        Moves tried.
+    reach
+        Longest move, in positions.
+    temperatures
+        Start and end temperatures, in units of the mean degree.
+    seed
+        Seed of the random choices.
+    seconds
+        Stop after about this long (None: no limit).
+
+    References
+    ----------
+    R. R. Lewis, "Simulated annealing for profile and fill reduction of
+    sparse matrices", Int. J. Numer. Meth. Eng. 37 (1994) 905-925 (volume
+    and pages from memory).
+    """
+    order = check_permutation(perm, graph.n).copy()
+    if graph.n < 3 or steps <= 0 or graph.indptr[-1] == 0:
+        return order
+    indptr, indices, pos, first, mark, label = _move_state(graph, order)
+    scale = graph.indptr[-1] / graph.n
+    t_start, t_end = temperatures[0] * scale, temperatures[1] * scale
+    best_order = order.copy()
+    _seed(seed)
+    current = best = stamp = done = 0
+    chunk = max(10_000, steps // 20)
+    t0 = time.perf_counter()
+    while done < steps:
+        k = min(chunk, steps - done)
+        current, best, stamp = _anneal(indptr, indices, order, pos, first, mark, stamp, label,
+                                       reach, done, k, steps, t_start, t_end, current, best,
+                                       best_order)
+        done += k
+        if seconds is not None and time.perf_counter() - t0 > seconds:
+            break
+    return best_order
 
 
 def position_key(graph: NodeGraph, perm: NDArray[np.integer]) -> NDArray[np.float64]:
@@ -238,20 +388,50 @@ def position_key(graph: NodeGraph, perm: NDArray[np.integer]) -> NDArray[np.floa
     return (size[labels] - 1 - rank) / scale[labels]
 
 
+def _sloan_rounds(graph: NodeGraph, start: NDArray[np.int64], start_prof: int,
+                  pairs: tuple[tuple[float, float], ...], rounds: int,
+                  out_of_time: Callable[[], bool]) -> tuple[NDArray[np.int64], int, int, str]:
+    """Rounds of Sloan steered by ``start``: ``(best, its profile, trials, why stopped)``."""
+    best, best_prof = start, start_prof
+    trials = 0
+    for _ in range(rounds):
+        gained = False
+        key = position_key(graph, best)
+        round_best = best
+        for key_sign in (1.0, -1.0):
+            for w1, w2 in pairs:
+                if out_of_time():
+                    return round_best, best_prof, trials, "time"
+                candidate = sloan(graph, w1=w1, w2=w2, key=key_sign * key)
+                trials += 1
+                prof = metrics(graph, candidate).profile
+                if prof < best_prof:
+                    best_prof, round_best, gained = prof, candidate, True
+        best = round_best
+        if not gained:
+            return best, best_prof, trials, "no gain"
+    return best, best_prof, trials, "rounds"
+
+
 def refined(graph: NodeGraph, perm: NDArray[np.integer], effort: str = "balanced",
-            seconds: float | None = None) -> Refinement:
-    """Sloan refinement of ``perm`` for a smaller profile (module notes).
+            seconds: float | None = None,
+            others: Sequence[NDArray[np.integer]] = ()) -> Refinement:
+    """Refinement of ``perm`` (and runners-up) for a smaller profile (module notes).
 
     Parameters
     ----------
     graph
         The node graph.
     perm
-        The ordering to refine (``perm[new] = old``).
+        The ordering to refine (``perm[new] = old``), in practice the best one.
     effort
-        A key of :data:`EFFORTS`: the weight pairs and rounds.
+        A key of :data:`EFFORTS`: the weight pairs and rounds, and of
+        :data:`STARTS`, :data:`MOVES` and :data:`ANNEAL_STEPS`.
     seconds
-        Stop starting new trials after this long (None: no limit).
+        Stop starting new work after this long (None: no limit).
+    others
+        Runners-up, best first: the first ``STARTS[effort] - 1`` are refined
+        by Sloan's rounds too, and the least profile of all is kept.
 
     Returns
     -------
@@ -261,42 +441,53 @@ def refined(graph: NodeGraph, perm: NDArray[np.integer], effort: str = "balanced
     Notes
     -----
     Cost: per trial one Sloan numbering, O((n + nnz) log n), and a profile
-    count, O(n + nnz); ``2 * pairs * rounds`` trials at most.
+    count, O(n + nnz); ``2 * pairs * rounds`` trials at most per start; then
+    the moves, O(passes * n * reach * degree), and the annealing,
+    O(steps * reach * degree).
     """
     if effort not in EFFORTS:
         raise ValueError(f"unknown effort {effort!r}; valid: {', '.join(EFFORTS)}")
     t0 = time.perf_counter()
+
+    def left() -> float | None:
+        return None if seconds is None else max(0.0, seconds - (time.perf_counter() - t0))
+
+    def out_of_time() -> bool:
+        return seconds is not None and time.perf_counter() - t0 > seconds
+
     pairs, rounds = EFFORTS[effort]
-    best = check_permutation(perm, graph.n).copy()
-    before = best_prof = metrics(graph, best).profile
+    given = check_permutation(perm, graph.n).copy()
+    before = best_prof = metrics(graph, given).profile
+    best = given
+    starts = [given] + [check_permutation(p, graph.n) for p in list(others)[:STARTS[effort] - 1]]
     trials = 0
     stopped = "rounds"
-    for _ in range(rounds):
-        gained = False
-        key = position_key(graph, best)
-        round_best = best
-        for key_sign in (1.0, -1.0):
-            for w1, w2 in pairs:
-                if seconds is not None and time.perf_counter() - t0 > seconds:
-                    stopped = "time"
-                    break
-                candidate = sloan(graph, w1=w1, w2=w2, key=key_sign * key)
-                trials += 1
-                prof = metrics(graph, candidate).profile
-                if prof < best_prof:
-                    best_prof, round_best, gained = prof, candidate, True
-            if stopped == "time":
-                break
-        best = round_best
-        if stopped == "time":
-            break
-        if not gained:
-            stopped = "no gain"
-            break
-    if MOVE_PASSES[effort] and stopped != "time":
-        left = None if seconds is None else max(0.0, seconds - (time.perf_counter() - t0))
-        moved = local_exchange(graph, best, MOVE_PASSES[effort], seconds=left)
-        prof = metrics(graph, moved).profile
+    for k, start in enumerate(starts):
+        start_prof = best_prof if k == 0 else metrics(graph, start).profile
+        found, prof, done, why = _sloan_rounds(graph, start, start_prof, pairs, rounds,
+                                               out_of_time)
+        trials += done
+        if k == 0 or why == "time":
+            stopped = why
         if prof < best_prof:
-            best, best_prof = moved, prof
+            best, best_prof = found, prof
+        if why == "time":
+            break
+
+    def keep(candidate: NDArray[np.int64]) -> None:
+        nonlocal best, best_prof
+        prof = metrics(graph, candidate).profile
+        if prof < best_prof:
+            best, best_prof = candidate, prof
+
+    passes, reach = MOVES[effort]
+    if passes and stopped != "time":
+        keep(local_exchange(graph, best, passes, reach, seconds=left()))
+        steps = min(ANNEAL_STEPS[effort] * graph.n, ANNEAL_MAX_STEPS)
+        if steps and not out_of_time():
+            keep(annealed(graph, best, steps, seconds=left()))
+            if not out_of_time():
+                keep(local_exchange(graph, best, passes, reach, seconds=left()))
+        if out_of_time():
+            stopped = "time"
     return Refinement(best, before, best_prof, trials, time.perf_counter() - t0, stopped)
