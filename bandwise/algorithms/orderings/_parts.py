@@ -13,7 +13,10 @@ components, one kernel per component):
 - a *part kernel* numbers the part of its start node into
   ``order[start:start+size]``, marks those nodes in ``seen`` (any non-zero
   value; it grows ``stamp`` by one per search it makes) and returns
-  ``(size, stamp)``.
+  ``(size, stamp)``.  A kernel that renumbers the graph as it goes also
+  writes the part's rows, in their new numbering, into ``rows`` (empty for
+  the others): the one search then both finds the part and lays its rows
+  out in the order the later passes read them.
 
 Kernels are compiled functions of one fixed signature (:data:`PART_KERNEL`),
 so the driver is compiled once and called with any of them through a
@@ -49,7 +52,8 @@ from bandwise.core.graph import NodeGraph
 
 from ._levels import _nodes_by_degree
 
-__all__ = ["PART_KERNEL", "each_part", "ordered_by_parts", "parts_in_order"]
+__all__ = ["PART_KERNEL", "each_part", "ordered_by_parts", "parts_in_order",
+           "renumbered_parts"]
 
 _i64 = types.int64
 _vec = types.Array(types.int64, 1, "C")
@@ -59,9 +63,9 @@ _fmat = types.Array(types.float64, 2, "C")
 _fvec = types.Array(types.float64, 1, "C")
 
 #: Signature of a part kernel: ``kernel(indptr, indices, deg, low, seen, stamp, order,
-#: start, iwork, fwork, params) -> (size, stamp)``.
+#: start, iwork, fwork, params, rows) -> (size, stamp)``.
 PART_KERNEL = types.UniTuple(_i64, 2)(_vec, _idx, _idx, _i64, _idx, _i64, _vec, _i64, _mat,
-                                      _fmat, _fvec)
+                                      _fmat, _fvec, _idx)
 
 PartKernel = Any  # a numba dispatcher compiled for PART_KERNEL
 PartOrdering = Callable[[NodeGraph], NDArray[np.int64]]
@@ -73,8 +77,8 @@ def part_kernel(func: Callable[..., tuple[int, int]]) -> PartKernel:
 
 
 @numba.njit(types.Tuple((_vec, _vec))(_vec, _idx, types.FunctionType(PART_KERNEL), _mat, _fmat,
-                                      _fvec), cache=True, nogil=True)
-def _each_part(indptr, indices, kernel, iwork, fwork, params):  # pragma: no cover - compiled
+                                      _fvec, _idx), cache=True, nogil=True)
+def _each_part(indptr, indices, kernel, iwork, fwork, params, rows):  # pragma: no cover - compiled
     """The loop over parts: ``(order, part_ptr)``, part ``p`` at ``order[part_ptr[p]:part_ptr[p+1]]``."""
     n = indptr.size - 1
     deg = np.empty(n, dtype=np.int32)
@@ -97,7 +101,7 @@ def _each_part(indptr, indices, kernel, iwork, fwork, params):  # pragma: no cov
             placed += 1
             continue
         size, stamp = kernel(indptr, indices, deg, v, seen, stamp, order, placed, iwork, fwork,
-                             params)
+                             params, rows)
         placed += size
     part_ptr[parts] = placed
     return order, part_ptr[:parts + 1].copy()
@@ -113,7 +117,8 @@ def _indices32(graph: NodeGraph) -> NDArray[np.int32]:
 def each_part(graph: NodeGraph, kernel: PartKernel, int_rows: int = 0, float_rows: int = 0,
               params: tuple[float, ...] | NDArray[np.float64] = (),
               iwork: NDArray[np.int64] | None = None,
-              fwork: NDArray[np.float64] | None = None
+              fwork: NDArray[np.float64] | None = None,
+              rows: NDArray[np.int32] | None = None
               ) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
     """Number every connected part of ``graph`` with a part kernel.
 
@@ -130,6 +135,9 @@ def each_part(graph: NodeGraph, kernel: PartKernel, int_rows: int = 0, float_row
     iwork, fwork
         The scratch rows themselves, when the caller fills some of them in
         (``int_rows`` or ``float_rows`` is then ignored).
+    rows
+        Room for the renumbered rows (``nnz`` entries), for a kernel that
+        writes them; empty by default.
 
     Returns
     -------
@@ -146,12 +154,14 @@ def each_part(graph: NodeGraph, kernel: PartKernel, int_rows: int = 0, float_row
         iwork = np.empty((int_rows, n + 1), dtype=np.int64)
     if fwork is None:
         fwork = np.empty((float_rows, n + 1), dtype=np.float64)
+    if rows is None:
+        rows = np.empty(0, dtype=np.int32)
     return _each_part(np.ascontiguousarray(graph.indptr, dtype=np.int64), _indices32(graph),
-                      kernel, iwork, fwork, np.ascontiguousarray(params, dtype=np.float64))
+                      kernel, iwork, fwork, np.ascontiguousarray(params, dtype=np.float64), rows)
 
 
 def _breadth_first_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
-                        params):  # pragma: no cover - compiled
+                        params, rows):  # pragma: no cover - compiled
     """The part of ``low`` in breadth-first order (only to find the parts)."""
     stamp += 1
     seen[low] = stamp
@@ -171,6 +181,60 @@ def _breadth_first_part(indptr, indices, deg, low, seen, stamp, order, start, iw
 
 
 _breadth_first = part_kernel(_breadth_first_part)
+
+
+def _renumbering_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
+                      params, rows):  # pragma: no cover - compiled
+    """The part of ``low`` breadth first, its rows written in the new numbering.
+
+    A node's new number is its place in ``order``.  Every node is reached
+    once, so its mark in ``seen`` can be that number plus one: a neighbour's
+    new number is then known the moment its edge is read, and the row goes
+    straight to ``rows`` (row pointers in row 0 of ``iwork``, which the
+    caller zeroes: parts without a kernel call are isolated nodes, all
+    placed first, with empty rows).
+    """
+    ptr = iwork[0]
+    top = ptr[start]
+    seen[low] = start + 1
+    order[start] = low
+    head = start
+    tail = start + 1
+    while head < tail:
+        v = order[head]
+        head += 1
+        for t in range(indptr[v], indptr[v + 1]):
+            u = indices[t]
+            k = seen[u] - 1
+            if k < 0:
+                k = tail
+                seen[u] = tail + 1
+                order[tail] = u
+                tail += 1
+            rows[top] = k
+            top += 1
+        ptr[head] = top
+    return tail - start, stamp + 1
+
+
+_renumbering = part_kernel(_renumbering_part)
+
+
+def renumbered_parts(graph: NodeGraph) -> tuple[NDArray[np.int64], NDArray[np.int64],
+                                                NDArray[np.int64], NDArray[np.int32]]:
+    """The graph renumbered breadth first, part after part: ``(order, part_ptr, indptr, indices)``.
+
+    ``order`` is ``perm[new] = old`` with the parts placed as by
+    :func:`each_part` and each part breadth first from its start;
+    ``(indptr, indices)`` is the graph in that numbering, so part ``p`` is
+    the diagonal block of rows ``part_ptr[p]:part_ptr[p+1]``.  One search
+    does both: a pass over the renumbered rows then reads its vectors
+    within a band instead of all over memory.
+    """
+    iwork = np.zeros((1, graph.n + 1), dtype=np.int64)
+    rows = np.empty(graph.indices.size, dtype=np.int32)
+    order, ptr = each_part(graph, _renumbering, iwork=iwork, rows=rows)
+    return order, ptr, iwork[0], rows
 
 
 def parts_in_order(graph: NodeGraph,

@@ -158,7 +158,7 @@ def _least_profile_within(kept, done, limit):  # pragma: no cover - compiled
 
 
 def _cm_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
-             params):  # pragma: no cover - compiled
+             params, rows):  # pragma: no cover - compiled
     """Part kernel: Cuthill-McKee of the part of ``low``, reversed when ``params[0]``.
 
     Every part gets :func:`_two_sweeps`; a part of at most :data:`SMALL_PART`

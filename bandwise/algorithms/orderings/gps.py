@@ -233,7 +233,7 @@ def _gps_part(indptr, indices, deg, low, seen, stamp, order, start, trees, tree_
 
 
 def _gps_kernel_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
-                     params):  # pragma: no cover - compiled
+                     params, rows):  # pragma: no cover - compiled
     """Part kernel: GPS of the part of ``low``, kept in the direction of smaller profile."""
     size, stamp = _gps_part(indptr, indices, deg, low, seen, stamp, order, start, iwork[0:3],
                             iwork[3:6], iwork[6], iwork[7], iwork[8], iwork[9])

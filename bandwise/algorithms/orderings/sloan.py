@@ -152,7 +152,7 @@ def _number_by_priority(indptr, indices, s, w2, base, slot, heap, hkey, out,
 
 
 def _sloan_kernel_part(indptr, indices, deg, low, seen, stamp, order, start, iwork, fwork,
-                       params):  # pragma: no cover - compiled
+                       params, rows):  # pragma: no cover - compiled
     """Part kernel: Sloan numbering of the part of ``low`` into ``order[start:]``.
 
     ``params`` = (w1, w2, use_key); ``fwork`` rows: key, base, heap keys;

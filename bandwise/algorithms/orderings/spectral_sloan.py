@@ -44,7 +44,7 @@ from bandwise.core.graph import NodeGraph
 from . import register
 from ._parts import ordered_by_parts
 from .sloan import sloan
-from .spectral import spectral_part
+from .spectral import spectral
 
 __all__ = ["spectral_key", "spectral_sloan"]
 
@@ -56,7 +56,7 @@ def spectral_key(graph: NodeGraph) -> NDArray[np.float64]:
     ``1 / floor(k / D)`` per position (``k`` nodes, largest degree ``D``).
     """
     k = graph.n
-    order = spectral_part(graph)
+    order = spectral(graph)
     rank = np.empty(k, dtype=np.float64)
     rank[order] = np.arange(k, dtype=np.float64)
     scale = max(1, k // max(1, int(graph.degrees().max())))
