@@ -11,6 +11,7 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
+import numpy as np
 import pytest
 from hypothesis import HealthCheck, settings
 
@@ -88,3 +89,28 @@ def seamed_blocks(path: Path, seed: int = 4) -> Path:
     cells = [CellBlock("tetra", np.concatenate([a.cells[0].data, b.cells[0].data + a.n_nodes]))]
     write_model(scrambled(Model(points=points, cells=cells), seed=seed), path)
     return path
+
+
+def assert_same_mesh(a, b) -> None:
+    """Assert two meshes (bandwise Models or meshio Meshes) hold the same arrays.
+
+    Points, cell types and connectivity, point and cell data (values and
+    dtypes) and, where both have it, field data.
+    """
+    np.testing.assert_array_equal(a.points, b.points)
+    assert a.points.dtype == b.points.dtype
+    assert [x.type for x in a.cells] == [y.type for y in b.cells]
+    for x, y in zip(a.cells, b.cells, strict=True):
+        np.testing.assert_array_equal(x.data, y.data)
+    assert a.point_data.keys() == b.point_data.keys()
+    for k in a.point_data:
+        np.testing.assert_array_equal(a.point_data[k], b.point_data[k])
+        assert a.point_data[k].dtype == b.point_data[k].dtype
+    assert a.cell_data.keys() == b.cell_data.keys()
+    for k in a.cell_data:
+        for x, y in zip(a.cell_data[k], b.cell_data[k], strict=True):
+            np.testing.assert_array_equal(x, y)
+            assert x.dtype == y.dtype
+    assert a.field_data.keys() == b.field_data.keys()
+    for k in a.field_data:
+        np.testing.assert_array_equal(a.field_data[k], b.field_data[k])

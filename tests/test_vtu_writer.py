@@ -17,6 +17,7 @@ from pathlib import Path
 import meshio
 import numpy as np
 import pytest
+from conftest import assert_same_mesh
 
 from bandwise.core.generate import scrambled, tet_grid
 from bandwise.formats import read_model, write_model
@@ -52,28 +53,11 @@ def _read_both(tmp_path: Path, mesh: meshio.Mesh, compression: str | None):
     return meshio.read(ours), meshio.read(theirs)
 
 
-def _assert_same(a: meshio.Mesh, b: meshio.Mesh) -> None:
-    np.testing.assert_array_equal(a.points, b.points)
-    assert a.points.dtype == b.points.dtype
-    assert [c.type for c in a.cells] == [c.type for c in b.cells]
-    for x, y in zip(a.cells, b.cells, strict=True):
-        np.testing.assert_array_equal(x.data, y.data)
-    assert a.point_data.keys() == b.point_data.keys()
-    for k in a.point_data:
-        np.testing.assert_array_equal(a.point_data[k], b.point_data[k])
-        assert a.point_data[k].dtype == b.point_data[k].dtype
-    assert a.cell_data.keys() == b.cell_data.keys()
-    for k in a.cell_data:
-        for x, y in zip(a.cell_data[k], b.cell_data[k], strict=True):
-            np.testing.assert_array_equal(x, y)
-            assert x.dtype == y.dtype
-
-
 @pytest.mark.parametrize("compression", ["zlib", None])
 @pytest.mark.parametrize("points_dim", [3, 2])
 def test_reads_back_as_meshio_writes(tmp_path: Path, compression, points_dim) -> None:
     """meshio reads our file exactly as it reads the file its own writer makes."""
-    _assert_same(*_read_both(tmp_path, _mixed(points_dim), compression))
+    assert_same_mesh(*_read_both(tmp_path, _mixed(points_dim), compression))
 
 
 def test_names_are_escaped(tmp_path: Path) -> None:

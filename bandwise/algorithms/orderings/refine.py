@@ -156,6 +156,25 @@ def _swap(indptr, indices, order, pos, first, mark, stamp, p):  # pragma: no cov
 
 
 @numba.njit(cache=True, nogil=True)
+def _carry(indptr, indices, order, pos, first, mark, stamp, p, q):  # pragma: no cover
+    """Carry the node at position ``p`` to position ``q`` by adjacent exchanges.
+
+    Returns ``(change of profile, stamp)``; used to put a node back where a
+    move was best, or where it was when a move is rejected.
+    """
+    change = 0
+    while p < q:
+        stamp += 1
+        change += _swap(indptr, indices, order, pos, first, mark, stamp, p)
+        p += 1
+    while p > q:
+        stamp += 1
+        change += _swap(indptr, indices, order, pos, first, mark, stamp, p - 1)
+        p -= 1
+    return change, stamp
+
+
+@numba.njit(cache=True, nogil=True)
 def _move_pass(indptr, indices, order, pos, first, mark, stamp, reach,
                label):  # pragma: no cover - compiled
     """One pass of single-node moves: each node tries positions up to ``reach`` away.
@@ -180,10 +199,8 @@ def _move_pass(indptr, indices, order, pos, first, mark, stamp, reach,
             if total < best:
                 best = total
                 best_p = p
-        while p > best_p:                            # back to the best place found
-            stamp += 1
-            _swap(indptr, indices, order, pos, first, mark, stamp, p - 1)
-            p -= 1
+        _, stamp = _carry(indptr, indices, order, pos, first, mark, stamp, p, best_p)
+        p = best_p                                   # back to the best place found
         if best < 0:
             gain -= best
             continue
@@ -195,10 +212,8 @@ def _move_pass(indptr, indices, order, pos, first, mark, stamp, reach,
             if total < best:
                 best = total
                 best_p = p
-        while p < best_p:
-            stamp += 1
-            _swap(indptr, indices, order, pos, first, mark, stamp, p)
-            p += 1
+        _, stamp = _carry(indptr, indices, order, pos, first, mark, stamp, p, best_p)
+        p = best_p
         gain -= best
         assert order[p] == v
     return gain, stamp
@@ -279,14 +294,7 @@ def _anneal(indptr, indices, order, pos, first, mark, stamp, label, reach, done,
                 best = current
                 best_order[:] = order
         else:                                        # rejected: carry the node back
-            while q > p:
-                stamp += 1
-                _swap(indptr, indices, order, pos, first, mark, stamp, q - 1)
-                q -= 1
-            while q < p:
-                stamp += 1
-                _swap(indptr, indices, order, pos, first, mark, stamp, q)
-                q += 1
+            _, stamp = _carry(indptr, indices, order, pos, first, mark, stamp, q, p)
     return current, best, stamp
 
 
