@@ -77,8 +77,12 @@ from ._parts import renumbered_parts
 
 __all__ = ["fiedler_vector", "laplacian", "spectral"]
 
-#: Largest part whose Fiedler vector is computed by a dense eigensolver.
-DENSE_LIMIT = 500
+#: Largest part whose Fiedler vector is computed by a dense eigensolver: 0.04 s at 1,000
+#: nodes, 0.13 s at 1,500 (measured).  The exact vector beats the multilevel one on the
+#: 77 test matrices: the best profile of auto, as a geometric mean of networkx's RCM
+#: profile, went 0.654 -> 0.650 (fast), 0.621 -> 0.618 (balanced) and 0.616 -> 0.613
+#: (thorough) from a limit of 500.
+DENSE_LIMIT = 1200
 #: Size at which coarsening stops (dense solve; larger dense solves wait on threaded
 #: LAPACK on a busy machine).
 COARSEST = 200
