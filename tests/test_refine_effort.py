@@ -22,8 +22,9 @@ from scipy.sparse.csgraph import connected_components
 from bandwise.algorithms.orderings import load_all
 from bandwise.algorithms.orderings._parts import ordered_by_parts, parts_in_order
 from bandwise.algorithms.orderings.compare import compare_orderings
-from bandwise.algorithms.orderings.refine import annealed, local_exchange, position_key, refined
+from bandwise.algorithms.orderings.refine import annealed, local_exchange, refined
 from bandwise.algorithms.orderings.sloan import sloan
+from bandwise.algorithms.orderings.spectral_sloan import position_key
 from bandwise.core.generate import quad_grid, scrambled, tet_grid, triangle_grid
 from bandwise.core.graph import NodeGraph, graph_from_matrix, node_graph
 from bandwise.core.metrics import metrics

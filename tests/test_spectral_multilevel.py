@@ -159,3 +159,47 @@ def test_a_star_does_not_coarsen_and_still_gets_its_fiedler_value():
     assert lam == pytest.approx(1.0, rel=1e-6)
     perm = spectral(star)
     assert np.array_equal(np.sort(perm), np.arange(n))
+
+
+def _random_connected(k: int, seed: int) -> NodeGraph:
+    """The Delaunay triangulation of k random points: connected, generally no symmetry."""
+    from scipy.spatial import Delaunay
+
+    points = np.random.default_rng(seed).random((k, 2))
+    return graph_from_cells([Delaunay(points).simplices.astype(np.int64)], k)
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_small_parts_order_as_the_general_dense_path(seed):
+    # The compiled loop over small parts (numpy's eigh inside numba) against the path
+    # every larger part takes (scipy's dense eigensolver, _signed, _ranked): the same
+    # order whenever the Fiedler value is simple (an eigenvector is then unique up to
+    # sign; common practice) and no two entries nearly tie.
+    from bandwise.algorithms.orderings.spectral import SMALL_PART, _block_vector, _signed
+
+    k = 12 + 4 * seed
+    assert k <= SMALL_PART
+    graph = _random_connected(k, seed)
+    order, _, indptr, indices = renumbered_parts(graph)
+    lap = np.diag(graph.degrees().astype(float)) - graph.to_scipy().toarray()
+    vals, vecs = sla.eigh(lap)
+    assert vals[2] - vals[1] > 1e-6 * vals[2]
+    assert np.min(np.diff(np.sort(vecs[:, 1]))) > 1e-9
+    _, x = _block_vector(indptr, indices, settle=True)
+    general = order[_ranked(_signed(x, order), order)]
+    assert np.array_equal(spectral(graph), general)
+
+
+def test_an_unmerged_mesh_is_ordered_part_by_part():
+    # Every tetrahedron its own part (a mesh whose coincident nodes were never merged):
+    # each part is K4, whose Laplacian eigenvalue 4 is triple, so any order of a part is
+    # a spectral order; the order must still be a permutation with parts contiguous and
+    # in the driver's part order.
+    cells = np.random.default_rng(2).permutation(4000).reshape(1000, 4)
+    graph = graph_from_cells([cells], 4003)            # and three isolated nodes
+    perm = spectral(graph)
+    ref_order, ref_ptr = parts_in_order(graph)
+    assert np.array_equal(np.sort(perm), np.arange(graph.n))
+    for p in range(ref_ptr.size - 1):
+        assert np.array_equal(np.sort(perm[ref_ptr[p]:ref_ptr[p + 1]]),
+                              ref_order[ref_ptr[p]:ref_ptr[p + 1]])

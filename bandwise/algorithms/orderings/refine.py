@@ -29,9 +29,10 @@ eight passes of moves 0.626, then 1,000 annealing steps per node (reach 8,
 temperatures 0.6 to 0.02 of the mean degree) and moves again 0.614.
 
 The key of the node at position ``p`` of its part (``k`` nodes, largest
-degree ``D``) is ``(k - 1 - p) / max(1, floor(k / D))``, the normalisation of
-:func:`bandwise.algorithms.orderings.spectral_sloan.spectral_key`, so the
-global term spans about ``D`` units, the range of the local term.
+degree ``D``) is ``(k - 1 - p) / max(1, floor(k / D))``
+(:func:`bandwise.algorithms.orderings.spectral_sloan.position_key`, the key the
+spectral-Sloan hybrid uses), so the global term spans about ``D`` units, the
+range of the local term.
 
 References
 ----------
@@ -66,8 +67,9 @@ from bandwise.core.model import check_permutation
 
 from ._parts import _indices32
 from .sloan import sloan
+from .spectral_sloan import position_key
 
-__all__ = ["EFFORTS", "Refinement", "annealed", "local_exchange", "position_key", "refined"]
+__all__ = ["EFFORTS", "Refinement", "annealed", "local_exchange", "refined"]
 
 #: Weight pairs (W1, W2) tried per effort, and the rounds of refinement.
 EFFORTS: dict[str, tuple[tuple[tuple[float, float], ...], int]] = {
@@ -366,34 +368,6 @@ def annealed(graph: NodeGraph, perm: NDArray[np.integer], steps: int,
         if seconds is not None and time.perf_counter() - t0 > seconds:
             break
     return best_order
-
-
-def position_key(graph: NodeGraph, perm: NDArray[np.integer]) -> NDArray[np.float64]:
-    """Sloan global key from an ordering: highest first, scaled per part (module notes).
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from bandwise.core.graph import graph_from_cells
-    >>> g = graph_from_cells([np.array([[0, 1], [1, 2]])], 3)
-    >>> position_key(g, np.array([2, 1, 0])).tolist()
-    [0.0, 1.0, 2.0]
-    """
-    perm = check_permutation(perm, graph.n)
-    n = graph.n
-    _, labels = component_labels(graph)
-    lab = labels[perm]
-    size = np.bincount(lab)
-    top = np.zeros(size.size, dtype=np.int64)
-    np.maximum.at(top, labels, graph.degrees())
-    first = np.zeros(size.size, dtype=np.int64)
-    first_pos = np.full(size.size, n, dtype=np.int64)
-    np.minimum.at(first_pos, lab, np.arange(n))
-    first[:] = first_pos
-    rank = np.empty(n, dtype=np.float64)
-    rank[perm] = np.arange(n) - first[lab]          # position within the part
-    scale = np.maximum(1, size // np.maximum(1, top))
-    return (size[labels] - 1 - rank) / scale[labels]
 
 
 def _sloan_rounds(graph: NodeGraph, start: NDArray[np.int64], start_prof: int,

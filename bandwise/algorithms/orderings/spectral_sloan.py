@@ -34,37 +34,51 @@ reduction of sparse matrices", Numer. Linear Algebra Appl. 2 (1995) 317-334.
 
 from __future__ import annotations
 
-from functools import partial
-
 import numpy as np
 from numpy.typing import NDArray
 
-from bandwise.core.graph import NodeGraph
+from bandwise.core.graph import NodeGraph, component_labels
+from bandwise.core.model import check_permutation
 
 from . import register
-from ._parts import ordered_by_parts
 from .sloan import sloan
 from .spectral import spectral
 
-__all__ = ["spectral_key", "spectral_sloan"]
+__all__ = ["position_key", "spectral_key", "spectral_sloan"]
+
+
+def position_key(graph: NodeGraph, perm: NDArray[np.integer]) -> NDArray[np.float64]:
+    """Sloan global key from an ordering: highest first, scaled per part (module notes).
+
+    The node at position ``p`` of its part (``k`` nodes, largest degree
+    ``D``) gets ``(k - 1 - p) / max(1, floor(k / D))``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from bandwise.core.graph import graph_from_cells
+    >>> g = graph_from_cells([np.array([[0, 1], [1, 2]])], 3)
+    >>> position_key(g, np.array([2, 1, 0])).tolist()
+    [0.0, 1.0, 2.0]
+    """
+    perm = check_permutation(perm, graph.n)
+    n = graph.n
+    _, labels = component_labels(graph)
+    lab = labels[perm]
+    size = np.bincount(lab)
+    top = np.zeros(size.size, dtype=np.int64)
+    np.maximum.at(top, labels, graph.degrees())
+    first_pos = np.full(size.size, n, dtype=np.int64)
+    np.minimum.at(first_pos, lab, np.arange(n))
+    rank = np.empty(n, dtype=np.float64)
+    rank[perm] = np.arange(n) - first_pos[lab]      # position within the part
+    scale = np.maximum(1, size // np.maximum(1, top))
+    return (size[labels] - 1 - rank) / scale[labels]
 
 
 def spectral_key(graph: NodeGraph) -> NDArray[np.float64]:
-    """Global priority of each node of a connected graph from its spectral position.
-
-    Highest for the first node of the spectral order, falling by
-    ``1 / floor(k / D)`` per position (``k`` nodes, largest degree ``D``).
-    """
-    k = graph.n
-    order = spectral(graph)
-    rank = np.empty(k, dtype=np.float64)
-    rank[order] = np.arange(k, dtype=np.float64)
-    scale = max(1, k // max(1, int(graph.degrees().max())))
-    return (k - 1 - rank) / scale
-
-
-def _hybrid_part(graph: NodeGraph, w1: float, w2: float) -> NDArray[np.int64]:
-    return sloan(graph, w1=w1, w2=w2, key=spectral_key(graph))
+    """Global priority of each node from its place in the spectral order of its part."""
+    return position_key(graph, spectral(graph))
 
 
 @register("spectral-sloan",
@@ -95,4 +109,4 @@ def spectral_sloan(graph: NodeGraph, w1: float = 1.0, w2: float = 1.0) -> NDArra
     G. Kumfert and A. Pothen, "Two improved algorithms for envelope and
     wavefront reduction", BIT 37 (1997) 559-590.
     """
-    return ordered_by_parts(graph, partial(_hybrid_part, w1=w1, w2=w2))
+    return sloan(graph, w1=w1, w2=w2, key=spectral_key(graph))
