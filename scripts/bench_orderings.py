@@ -190,12 +190,17 @@ def ratio_line(label: str, ours: list[float], base: list[float], target: float) 
 
 
 def warm_up() -> None:
-    """Compile (or load) every kernel on a tiny mesh, so no timing includes it."""
-    tiny = node_graph(scrambled(tet_grid(9, 9, 9), seed=1))
-    for info in load_all().values():
-        info.func(tiny)
-    for e in EFFORTS:
-        compare_orderings(tiny, "auto", effort=e)
+    """Compile (or load) every kernel on two small meshes, so no timing includes it.
+
+    One mesh below and one above the spectral ordering's dense limit, so the
+    multilevel path is compiled too.
+    """
+    for k in (9, 13):
+        small = node_graph(scrambled(tet_grid(k, k, k), seed=1))
+        for info in load_all().values():
+            info.func(small)
+        for e in EFFORTS:
+            compare_orderings(small, "auto", effort=e)
 
 
 def delaunay(n_points: int, repeat: int) -> None:
