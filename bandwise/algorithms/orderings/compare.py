@@ -469,7 +469,8 @@ def compare_orderings(graph: NodeGraph, methods: str | Sequence[str] = "auto",
     rows.extend(_run_all(graph, infos, options, dofs, fill_each, progress))
     comparison = _chosen(rows, objective, fill_note, skipped)
     if objective == "profile" and methods == "auto" and _refines(graph.n, effort):
-        with step(progress, f"refining {comparison.best.method} ({effort})"):
+        # a step's label ends with the row it is timed under (workflows.timing)
+        with step(progress, f"refining {comparison.best.method} ({effort} effort) into {REFINED}"):
             refined_row, why = _refined_row(graph, comparison.best, rows, dofs, fill_each,
                                             effort)
         if why:
@@ -478,8 +479,9 @@ def compare_orderings(graph: NodeGraph, methods: str | Sequence[str] = "auto",
             rows.append(refined_row)
             comparison = _chosen(rows, objective, fill_note, skipped)
     if fill_each is None and fill is not None:
-        rows = [_with_fill(graph, r, dofs, fill) if r is comparison.best else r
-                for r in comparison.rows]
+        with step(progress, f"counting the Cholesky fill of {comparison.best.method}"):
+            rows = [_with_fill(graph, r, dofs, fill) if r is comparison.best else r
+                    for r in comparison.rows]
         comparison = _chosen(rows, objective, fill_note, skipped)
     return Comparison(comparison.objective, comparison.rows, comparison.best,
                       comparison.fill_note, comparison.skipped, cut_short, effort)
