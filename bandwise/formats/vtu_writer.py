@@ -36,7 +36,6 @@ import os
 import zlib
 from collections.abc import Iterator
 from concurrent.futures import ThreadPoolExecutor
-from pathlib import Path
 from typing import Any, BinaryIO
 from xml.sax.saxutils import quoteattr
 

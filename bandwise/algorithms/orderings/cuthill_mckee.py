@@ -101,8 +101,8 @@ def _wide_search(indptr, indices, deg, low, seen, stamp, order, start, level_ptr
     profile is kept.  The search stops when ``budget[0]`` (node and edge
     visits, shared by every part of the graph) runs out.  Returns ``(size, stamp)``.
     """
-    root, size, depth, stamp, _, _ = _george_liu(indptr, indices, deg, low, seen, stamp,
-                                                 order, start, level_ptr, 1)
+    root, size, _, stamp, _, _ = _george_liu(indptr, indices, deg, low, seen, stamp,
+                                             order, start, level_ptr, 1)
     mean_degree = 0
     for a in range(start, start + size):
         mean_degree += deg[order[a]]
